@@ -1,0 +1,30 @@
+"""Identity, position and detection columns of the ``craters`` layer."""
+
+from ._field import Field
+
+FIELDS = (
+    Field("crater_id", "", "str", "Stable crater identifier (user id kept by `measure`).",
+          "tile-independent: derived from the sorted final table", "common practice"),
+    Field("center_x", "CRS map unit", "float64", "Crater centre easting in the DEM's CRS.",
+          "refined centre mapped back from the local metric grid to the source CRS", "common practice"),
+    Field("center_y", "CRS map unit", "float64", "Crater centre northing in the DEM's CRS.",
+          "as center_x", "common practice"),
+    Field("lon", "degree", "float64", "Planetocentric east longitude of the centre (-180..180).",
+          "pyproj transform to the body's geographic CRS", "common practice"),
+    Field("lat", "degree", "float64", "Planetocentric latitude of the centre.",
+          "pyproj transform to the body's geographic CRS", "common practice"),
+    Field("diameter_m", "m", "float64", "Rim-crest (rim-to-rim) diameter.",
+          "2 x mean rim-crest radius from a least-squares circle fit to the rim crest found on radial profiles, corrected for the local map scale",
+          "Pike 1977, Impact and Explosion Cratering (Pergamon) 489-509; Kasa 1976 IEEE Trans. Instrum. Meas. 25:8", has_error=True),
+    Field("detection_confidence", "1", "float64", "Confidence in [0, 1] that this is a crater.",
+          "detector score combined with the share of azimuths showing a rim crest and interior depression",
+          "common practice"),
+    Field("rim_coverage", "1", "float64", "Share of profile azimuths whose rim crest lies on valid data, in [0, 1].",
+          "count of azimuths with valid samples out to 1.2 R divided by the number of azimuths", "common practice"),
+    Field("pixels_per_diameter", "1", "float64", "Rim-crest diameter in DEM pixels.",
+          "diameter_m / pixel size of the local metric grid", "common practice"),
+    Field("measure_status", "", "str", "'ok', or why the crater could not be measured.",
+          "set by the morphometry step", "common practice"),
+    Field("source_tile", "", "str", "Tile (row_off, col_off) where the crater was measured.",
+          "survey engine", "common practice"),
+)
