@@ -484,7 +484,7 @@ def read_tile(info: DemInfo, spec: TileSpec) -> DemTile:
     DemTile
     """
     z = _read_window(info, spec)
-    t = info.transform * Affine.translation(spec.col_off, spec.row_off)
+    t = info.transform @ Affine.translation(spec.col_off, spec.row_off)
     if not info.needs_warp:
         spacing = abs(t.a) * info.linear_unit_m
         return DemTile(z=z, spacing_m=spacing, transform=t, crs=info.crs, info=info, spec=spec)
@@ -494,7 +494,7 @@ def read_tile(info: DemInfo, spec: TileSpec) -> DemTile:
 def _warp_tile(info: DemInfo, spec: TileSpec, z: np.ndarray, src_t: Affine) -> DemTile:
     h, w = z.shape
     to_geo = pyproj.Transformer.from_crs(info.crs, info.geodetic_crs(), always_xy=True)
-    cx, cy = src_t * (w / 2.0, h / 2.0)
+    cx, cy = src_t @ (w / 2.0, h / 2.0)
     lon0, lat0 = to_geo.transform(cx, cy)
     local = _local_crs(info, float(lon0), float(lat0))
     # Ground size at the tile centre; keep the finer axis so no resolution is thrown away.
@@ -505,7 +505,7 @@ def _warp_tile(info: DemInfo, spec: TileSpec, z: np.ndarray, src_t: Affine) -> D
     edge = np.linspace(0, 1, 65)
     bx = np.concatenate([edge * w, np.full(65, w), edge[::-1] * w, np.zeros(65)])
     by = np.concatenate([np.zeros(65), edge * h, np.full(65, h), edge[::-1] * h])
-    sx, sy = src_t * (bx, by)
+    sx, sy = src_t @ (bx, by)
     to_local = pyproj.Transformer.from_crs(info.crs, local, always_xy=True)
     lx, ly = to_local.transform(sx, sy)
     xmin, xmax = float(np.min(lx)), float(np.max(lx))
