@@ -9,6 +9,7 @@ from .dem import (
     read_dem,
     read_tile,
     sha256_of,
+    valid_footprint,
 )
 from .tiles import TileSpec, plan_windows
 
@@ -23,4 +24,5 @@ __all__ = [
     "read_dem",
     "read_tile",
     "sha256_of",
+    "valid_footprint",
 ]

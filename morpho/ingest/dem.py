@@ -539,6 +539,42 @@ def read_dem(path, **kwargs) -> DemTile:
     return read_tile(info, spec)
 
 
+def valid_footprint(info: DemInfo, max_size: int = 1024):
+    """Polygon (source CRS) of the valid-data area, from a decimated read of the mask.
+
+    Parameters
+    ----------
+    info : DemInfo
+    max_size : int
+        Longest side of the decimated mask; the outline is accurate to about
+        ``max(width, height) / max_size`` source pixels.
+
+    Returns
+    -------
+    shapely.Geometry
+        (Multi)Polygon in the source CRS map units.
+    """
+    import shapely
+    from rasterio import features
+
+    step = max(1, math.ceil(max(info.width, info.height) / max_size))
+    out_h = max(1, math.ceil(info.height / step))
+    out_w = max(1, math.ceil(info.width / step))
+    try:
+        with rasterio.open(info.path) as src:
+            raw = src.read(info.band, out_shape=(out_h, out_w), masked=True)
+    except (RasterioIOError, OSError, ValueError) as err:
+        raise _fail_open(info.path, err) from err
+    data = np.ma.getdata(raw).astype(np.float64) * info.z_scale + info.z_offset
+    ok = ~np.ma.getmaskarray(raw) & np.isfinite(data) & (np.abs(data) <= MAX_ABS_ELEVATION_M)
+    t = info.transform @ Affine.scale(info.width / out_w, info.height / out_h)
+    polys = [shapely.geometry.shape(geom) for geom, val in
+             features.shapes(ok.astype(np.uint8), mask=ok, transform=t) if val == 1]
+    if not polys:
+        return shapely.geometry.Polygon()
+    return shapely.union_all(polys)
+
+
 def sha256_of(path, chunk: int = 1 << 20) -> str:
     """SHA-256 of a file, streamed."""
     import hashlib

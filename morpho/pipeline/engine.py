@@ -1,0 +1,176 @@
+"""Run tile jobs serially or on Dask, with per-tile results kept for resuming.
+
+The serial path and the distributed path call the same tile function with the
+same arguments; only the executor differs. Each finished tile is written to the
+run folder (``<output>.morpho-run/``) at once, so an interrupted survey resumes
+by redoing only the missing tiles. A tile that raises is retried once, then
+recorded as failed while the others complete.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import time
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+from tqdm.auto import tqdm
+
+from ..ingest import TileSpec
+
+__all__ = ["TileRun", "run_tiles"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass
+class TileRun:
+    """What running the tiles produced.
+
+    Attributes
+    ----------
+    results : list of DataFrame
+        One per successful tile, in tile order (independent of completion order).
+    failed : dict
+        Tile key -> error text, for tiles that failed twice.
+    seconds : float
+        Wall time.
+    reused : int
+        Tiles taken from the run folder (``resume``).
+    """
+
+    results: list = field(default_factory=list)
+    failed: dict = field(default_factory=dict)
+    seconds: float = 0.0
+    reused: int = 0
+
+
+def _cache_path(run_dir: Path, spec: TileSpec) -> Path:
+    return run_dir / f"{spec.key}.parquet"
+
+
+def _save(run_dir: Path, spec: TileSpec, df: pd.DataFrame) -> None:
+    target = _cache_path(run_dir, spec)
+    tmp = target.with_suffix(".parquet.tmp")
+    df.to_parquet(tmp, index=False)
+    os.replace(tmp, target)
+
+
+def run_tiles(
+    func: Callable,
+    first_arg,
+    specs: Sequence[TileSpec],
+    extra_args: tuple = (),
+    *,
+    workers: int | None = 1,
+    scheduler: str | None = None,
+    run_dir: Path | None = None,
+    resume: bool = False,
+    progress: bool = True,
+) -> TileRun:
+    """Run ``func(first_arg, spec, *extra_args)`` for every tile.
+
+    Parameters
+    ----------
+    func : callable
+        A module-level function (picklable) returning a DataFrame.
+    first_arg : object
+        Usually the :class:`~morpho.ingest.DemInfo` (small; each task reads its own window).
+    specs : sequence of TileSpec
+    extra_args : tuple
+        Further picklable arguments.
+    workers : int, optional
+        Local worker processes; 1 (or a single tile) runs in this process. ``None`` = all cores.
+    scheduler : str, optional
+        Address of an existing dask.distributed scheduler (``tcp://host:port``).
+    run_dir : Path, optional
+        Folder for per-tile results; enables ``resume``.
+    resume : bool
+        Reuse tiles already in ``run_dir``.
+    progress : bool
+        Show a progress bar over tiles.
+
+    Returns
+    -------
+    TileRun
+    """
+    t0 = time.perf_counter()
+    run = TileRun()
+    done: dict[int, pd.DataFrame] = {}
+    todo = []
+    if run_dir is not None:
+        run_dir.mkdir(parents=True, exist_ok=True)
+    for spec in specs:
+        cached = None if run_dir is None else _cache_path(run_dir, spec)
+        if resume and cached is not None and cached.exists():
+            done[spec.index] = pd.read_parquet(cached)
+            run.reused += 1
+        else:
+            todo.append(spec)
+    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    bar = tqdm(total=len(specs), initial=run.reused, unit="tile", desc="tiles", disable=not progress,
+               leave=False)
+
+    def _record(spec, df=None, err=None):
+        if err is not None:
+            run.failed[spec.key] = f"{type(err).__name__}: {err}"
+            log.error("tile %s failed twice: %s", spec.key, err)
+        else:
+            done[spec.index] = df
+            if run_dir is not None:
+                _save(run_dir, spec, df)
+        bar.update(1)
+
+    if todo and scheduler is None and (n_workers <= 1 or len(todo) == 1):
+        for spec in todo:
+            try:
+                df = _run_one(func, first_arg, spec, extra_args)
+            except Exception as err:  # noqa: BLE001
+                _record(spec, err=err)
+                continue
+            _record(spec, df=df)
+    elif todo:
+        _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, _record)
+    bar.close()
+    run.results = [done[s.index] for s in specs if s.index in done]
+    run.seconds = time.perf_counter() - t0
+    return run
+
+
+def _run_one(func, first_arg, spec, extra_args):
+    try:
+        return func(first_arg, spec, *extra_args)
+    except Exception as err:  # noqa: BLE001 - retried once, then reported by the caller
+        log.warning("tile %s failed (%s); retrying once", spec.key, err)
+        return func(first_arg, spec, *extra_args)
+
+
+def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record):
+    from dask.distributed import Client, LocalCluster, as_completed
+
+    cluster = None
+    if scheduler is None:
+        cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
+                               dashboard_address=None)
+        client = Client(cluster)
+    else:
+        client = Client(scheduler)
+    try:
+        futures = {}
+        for spec in todo:
+            fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
+                                key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
+            futures[fut] = spec
+        for fut in as_completed(futures):
+            spec = futures[fut]
+            try:
+                record(spec, df=fut.result())
+            except Exception as err:  # noqa: BLE001
+                record(spec, err=err)
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()

@@ -1,0 +1,424 @@
+"""Survey and measure: the whole job from a DEM file to scored craters and population statistics.
+
+``survey`` detects craters tile by tile; ``measure`` takes a user's crater list.
+Both then merge the tiles, resolve duplicates in overlaps deterministically,
+add the scaling-law comparison, score each crater, compute population
+statistics on the merged table, and return a :class:`SurveyResult` that
+:func:`morpho.outputs.write_geopackage` writes.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import time
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyproj
+import shapely
+
+from ..dictionary import CRATER_COLUMNS
+from ..errors import InputError
+from ..ingest import DemInfo, open_dem, plan_tiles, valid_footprint
+from .engine import run_tiles
+from .tile_job import TileParams, measure_tile, survey_tile
+
+__all__ = ["SurveyResult", "survey", "measure"]
+
+log = logging.getLogger(__name__)
+
+#: Default core size of a tile in source pixels.
+DEFAULT_TILE_SIZE = 2048
+#: Largest crater searched by default on multi-tile DEMs (pixels); single-tile DEMs search up to the tile.
+DEFAULT_MAX_DIAMETER_PX = 256
+
+
+@dataclass
+class SurveyResult:
+    """Everything a survey produced, ready to be written.
+
+    Attributes
+    ----------
+    craters : geopandas.GeoDataFrame
+        One row per crater, rim outline polygons in the DEM's CRS, columns in dictionary order.
+    population : pandas.DataFrame
+        ``statistic, value, p_value, n, method, reference``.
+    chains : geopandas.GeoDataFrame
+        Detected crater chains as lines in the DEM's CRS.
+    footprint : geopandas.GeoDataFrame
+        The valid-data area in the DEM's CRS.
+    run : dict
+        Provenance (key -> value) for the ``run`` layer.
+    failed_tiles : dict
+        Tile key -> error, for tiles that failed twice.
+    """
+
+    craters: gpd.GeoDataFrame
+    population: pd.DataFrame
+    chains: gpd.GeoDataFrame
+    footprint: gpd.GeoDataFrame
+    run: dict
+    failed_tiles: dict = field(default_factory=dict)
+    unmeasured: pd.DataFrame | None = None
+
+    @property
+    def partial(self) -> bool:
+        """True when some tiles failed and the result misses their craters."""
+        return bool(self.failed_tiles)
+
+
+def _crs_for_output(info: DemInfo):
+    return None if info.crs is None else info.crs
+
+
+def _metric_xy(df: pd.DataFrame, info: DemInfo):
+    """Crater centres in a local azimuthal-equidistant plane (metres) centred on the DEM."""
+    if info.crs is None:
+        return df["center_x"].to_numpy(float), df["center_y"].to_numpy(float), None
+    from ..population import to_local_metric
+
+    geo = info.geodetic_crs()
+    cx, cy = info.transform @ (info.width / 2.0, info.height / 2.0)
+    lon0, lat0 = pyproj.Transformer.from_crs(info.crs, geo, always_xy=True).transform(cx, cy)
+    x, y = to_local_metric(df["lon"].to_numpy(float), df["lat"].to_numpy(float),
+                           info.body.radius_m, lon0=float(lon0), lat0=float(lat0))
+    return np.asarray(x), np.asarray(y), (float(lon0), float(lat0))
+
+
+def _metric_crs(info: DemInfo, origin):
+    if origin is None:
+        return None
+    lon0, lat0 = origin
+    return pyproj.CRS.from_proj4(
+        f"+proj=aeqd +lat_0={lat0} +lon_0={lon0} +R={info.body.radius_m} +units=m +no_defs +type=crs"
+    )
+
+
+def _dedupe(df: pd.DataFrame, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Boolean keep-mask dropping the same crater found by two neighbouring tiles.
+
+    Two craters from different tiles are one when their centres are closer
+    than 0.25 of the mean diameter and their diameters differ by < 30 %; the
+    one with the higher detection confidence (then the lower tile key) stays.
+    """
+    from scipy.spatial import cKDTree
+
+    n = len(df)
+    keep = np.ones(n, bool)
+    if n < 2:
+        return keep
+    d = df["diameter_m"].to_numpy(float)
+    good = np.isfinite(x) & np.isfinite(y) & np.isfinite(d)
+    idx = np.flatnonzero(good)
+    if idx.size < 2:
+        return keep
+    tree = cKDTree(np.column_stack([x[idx], y[idx]]))
+    pairs = tree.query_pairs(r=0.25 * float(np.nanmax(d[idx])), output_type="ndarray")
+    if pairs.size == 0:
+        return keep
+    i, j = idx[pairs[:, 0]], idx[pairs[:, 1]]
+    dist = np.hypot(x[i] - x[j], y[i] - y[j])
+    dm = 0.5 * (d[i] + d[j])
+    tiles = df["source_tile"].to_numpy()
+    same = (dist < 0.25 * dm) & (np.abs(d[i] - d[j]) < 0.3 * dm) & (tiles[i] != tiles[j])
+    conf = df["detection_confidence"].fillna(0).to_numpy(float)
+    order = np.lexsort((tiles, -conf))  # best first: high confidence, then lower tile key
+    rank = np.empty(n, int)
+    rank[order] = np.arange(n)
+    for a, b in sorted(zip(i[same], j[same], strict=True), key=lambda p: min(rank[p[0]], rank[p[1]])):
+        if keep[a] and keep[b]:
+            keep[b if rank[a] < rank[b] else a] = False
+    return keep
+
+
+def _stable_order(df: pd.DataFrame) -> pd.DataFrame:
+    """Deterministic row order (north to south, then west to east, then size)."""
+    key_y = np.round(df["center_y"].to_numpy(float), 3)
+    key_x = np.round(df["center_x"].to_numpy(float), 3)
+    key_d = np.round(df["diameter_m"].to_numpy(float), 3)
+    order = np.lexsort((key_d, key_x, -key_y))
+    return df.iloc[order].reset_index(drop=True)
+
+
+def _geodataframe(df: pd.DataFrame, info: DemInfo) -> gpd.GeoDataFrame:
+    geom = shapely.from_wkb(df["rim_wkb"].to_numpy()) if "rim_wkb" in df else None
+    keep_cols = [c for c in CRATER_COLUMNS if c in df.columns]
+    dropped = sorted(set(df.columns) - set(keep_cols) - {"rim_wkb", "row", "col", "radius_px"})
+    if dropped:
+        log.debug("columns not in the data dictionary, not written: %s", dropped)
+    out = df[keep_cols].copy()
+    return gpd.GeoDataFrame(out, geometry=geom, crs=_crs_for_output(info))
+
+
+def _empty_craters(info: DemInfo) -> gpd.GeoDataFrame:
+    from ..dictionary import FIELDS
+
+    cols = {}
+    for name in CRATER_COLUMNS:
+        dtype = FIELDS[name].dtype
+        cols[name] = pd.Series([], dtype="object" if dtype == "str" else dtype)
+    return gpd.GeoDataFrame(pd.DataFrame(cols), geometry=gpd.GeoSeries([], crs=_crs_for_output(info)),
+                            crs=_crs_for_output(info))
+
+
+def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
+    """Population statistics on the merged table; chains mapped back to the DEM's CRS."""
+    from ..population import population_statistics
+
+    x, y, origin = _metric_xy(craters, info)
+    metric = _metric_crs(info, origin)
+    if metric is not None and not footprint_src.is_empty:
+        to_m = pyproj.Transformer.from_crs(info.crs, metric, always_xy=True)
+        area = shapely.transform(footprint_src, lambda xy: np.column_stack(to_m.transform(xy[:, 0], xy[:, 1])))
+    else:
+        area = footprint_src
+    az = craters["ellipse_azimuth_deg"].to_numpy(float) if "ellipse_azimuth_deg" in craters else None
+    ell = craters["ellipticity"].to_numpy(float) if "ellipticity" in craters else None
+    res = population_statistics(x, y, craters["diameter_m"].to_numpy(float), area,
+                                ellipse_azimuth_deg=az, ellipticity=ell, seed=seed)
+    lines = [c["geometry"] if isinstance(c, dict) else c for c in (res.chains or [])]
+    if metric is not None and lines:
+        back = pyproj.Transformer.from_crs(metric, info.crs, always_xy=True)
+        lines = [shapely.transform(g, lambda xy: np.column_stack(back.transform(xy[:, 0], xy[:, 1])))
+                 for g in lines]
+    chains = gpd.GeoDataFrame({"chain_id": np.arange(len(lines), dtype="int64")},
+                              geometry=gpd.GeoSeries(lines, crs=_crs_for_output(info)),
+                              crs=_crs_for_output(info))
+    return res, chains
+
+
+def _score(craters: pd.DataFrame, model):
+    from ..scoring import default_model_path, load_model, score_craters
+
+    if model is None or model == "default":
+        model_path = default_model_path()
+    else:
+        model_path = Path(model)
+    fitted = load_model(model_path)
+    return score_craters(craters, fitted), model_path
+
+
+def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, t_start: float,
+            started: str, failed: dict, command: str, unmeasured=None) -> SurveyResult:
+    from ..outputs import run_provenance
+    from ..scaling import add_scaling_columns
+
+    footprint_src = valid_footprint(info)
+    model_path = None
+    if len(df):
+        df = add_scaling_columns(df, info.body)
+        scores, model_path = _score(df, model)
+        for col in scores.columns:
+            df[col] = scores[col].to_numpy()
+        pop, chains = _population(df, info, footprint_src, seed)
+        df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
+        df["chain_id"] = np.asarray(pop.chain_id, dtype="int64")
+        population = pop.stats
+        craters = _geodataframe(df, info)
+    else:
+        craters = _empty_craters(info)
+        population = pd.DataFrame({"statistic": pd.Series([], dtype=str), "value": pd.Series([], dtype=float),
+                                   "p_value": pd.Series([], dtype=float), "n": pd.Series([], dtype="int64"),
+                                   "method": pd.Series([], dtype=str), "reference": pd.Series([], dtype=str)})
+        chains = gpd.GeoDataFrame({"chain_id": pd.Series([], dtype="int64")},
+                                  geometry=gpd.GeoSeries([], crs=_crs_for_output(info)),
+                                  crs=_crs_for_output(info))
+    footprint = gpd.GeoDataFrame({"name": ["valid_data"]}, geometry=[footprint_src], crs=_crs_for_output(info))
+    seconds = time.perf_counter() - t_start
+    run = run_provenance(
+        info=info, params=params, seed=seed, model_path=model_path, started=started,
+        finished=datetime.now(UTC).isoformat(timespec="seconds"), failed_tiles=failed,
+        command=command, n_craters=len(craters), seconds=seconds,
+    )
+    return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured)
+
+
+def _prepare(path, *, body, band, pixel_size, z_scale, z_offset, min_diameter_px):
+    return open_dem(path, band=band, body=body, pixel_size=pixel_size, z_scale=z_scale,
+                    z_offset=z_offset, min_size_px=int(math.ceil(min_diameter_px)))
+
+
+def _tiling(info: DemInfo, tile_size: int, max_diameter_px):
+    single = max(info.height, info.width) <= tile_size
+    if single:
+        specs = plan_tiles(info, max(info.height, info.width), 0)
+        return specs, max_diameter_px
+    max_d = DEFAULT_MAX_DIAMETER_PX if max_diameter_px is None else float(max_diameter_px)
+    overlap = int(math.ceil(1.25 * max_d))
+    return plan_tiles(info, tile_size, overlap), max_d
+
+
+def survey(
+    path,
+    *,
+    body: str | None = None,
+    band: int | None = None,
+    pixel_size: float | None = None,
+    z_scale: float | None = None,
+    z_offset: float | None = None,
+    min_diameter_px: float = 8.0,
+    max_diameter_px: float | None = None,
+    tile_size: int = DEFAULT_TILE_SIZE,
+    n_azimuths: int = 64,
+    n_boot: int = 30,
+    seed: int = 0,
+    model=None,
+    workers: int | None = 1,
+    scheduler: str | None = None,
+    run_dir=None,
+    resume: bool = False,
+    progress: bool = False,
+    _fail_tiles: tuple = (),
+) -> SurveyResult:
+    """Detect, measure and score the craters of a DEM and test their population.
+
+    Parameters
+    ----------
+    path : str or Path
+        The DEM (any raster GDAL reads).
+    body, band, pixel_size, z_scale, z_offset
+        See :func:`morpho.ingest.open_dem`.
+    min_diameter_px, max_diameter_px : float
+        Diameter range searched, in pixels of the local metric grid. By default
+        a single-tile DEM is searched up to a large fraction of its size and a
+        multi-tile DEM up to 256 px (the tile overlap grows with it).
+    tile_size : int
+        Tile core size in source pixels; sets memory use.
+    n_azimuths, n_boot : int
+        Radial profiles per crater and bootstrap resamples.
+    seed : int
+        Seed for every random step; same input + seed = same output.
+    model : str or Path, optional
+        Scoring model file (skops); the shipped default when omitted.
+    workers : int, optional
+        Local worker processes (``None`` = all cores).
+    scheduler : str, optional
+        Address of an existing dask.distributed scheduler.
+    run_dir : Path, optional
+        Folder for per-tile results (enables ``resume``).
+    resume : bool
+        Continue an interrupted survey, redoing only missing tiles.
+    progress : bool
+        Progress bar over tiles.
+
+    Returns
+    -------
+    SurveyResult
+
+    Examples
+    --------
+    >>> res = survey("sample_dems/highland_block_a.tif")  # doctest: +SKIP
+    >>> res.craters[["diameter_m", "d_over_D", "p_impact", "verdict"]].head()  # doctest: +SKIP
+    """
+    t_start = time.perf_counter()
+    started = datetime.now(UTC).isoformat(timespec="seconds")
+    info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
+                    z_offset=z_offset, min_diameter_px=min_diameter_px)
+    specs, max_d = _tiling(info, tile_size, max_diameter_px)
+    params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
+                        n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
+                        fail_tiles=tuple(_fail_tiles))
+    run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
+                    run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress)
+    frames = [f for f in run.results if len(f)]
+    df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    if len(df):
+        df = df[df["measure_status"].astype(str) == "ok"].reset_index(drop=True) if "measure_status" in df else df
+    if len(df):
+        x, y, _ = _metric_xy(df, info)
+        df = df.loc[_dedupe(df, x, y)].reset_index(drop=True)
+        df = _stable_order(df)
+        df["crater_id"] = [f"C{i + 1:06d}" for i in range(len(df))]
+    record = {
+        "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
+        "z_offset": info.z_offset, "min_diameter_px": min_diameter_px, "max_diameter_px": max_d,
+        "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
+        "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
+    }
+    return _finish(df, info, seed=seed, model=model, params=record, t_start=t_start, started=started,
+                   failed=run.failed, command="survey")
+
+
+def measure(
+    path,
+    craters: pd.DataFrame,
+    *,
+    body: str | None = None,
+    band: int | None = None,
+    pixel_size: float | None = None,
+    z_scale: float | None = None,
+    z_offset: float | None = None,
+    tile_size: int = DEFAULT_TILE_SIZE,
+    n_azimuths: int = 64,
+    n_boot: int = 30,
+    seed: int = 0,
+    model=None,
+    workers: int | None = 1,
+    scheduler: str | None = None,
+    progress: bool = False,
+    bad_rows: dict | None = None,
+) -> SurveyResult:
+    """Measure and score a user's crater list on a DEM (no detection).
+
+    Parameters
+    ----------
+    path : str or Path
+        The DEM.
+    craters : pandas.DataFrame
+        Columns ``crater_id, x, y, diameter_m`` with x, y in the DEM's CRS
+        (see :func:`morpho.ingest.craterlist.read_crater_list`).
+    bad_rows : dict, optional
+        Rows of the list already refused by the reader (row -> reason), kept in provenance.
+
+    Other parameters are as for :func:`survey`.
+
+    Returns
+    -------
+    SurveyResult
+        ``unmeasured`` lists the craters that could not be measured, with the reason.
+    """
+    t_start = time.perf_counter()
+    started = datetime.now(UTC).isoformat(timespec="seconds")
+    info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
+                    z_offset=z_offset, min_diameter_px=4)
+    need = {"crater_id", "x", "y", "diameter_m"}
+    if not need <= set(craters.columns):
+        raise InputError(f"crater table lacks columns {sorted(need - set(craters.columns))}.",
+                         fix="read the list with morpho.ingest.craterlist.read_crater_list.")
+    max_d_px = float(np.nanmax(craters["diameter_m"])) / min(info.ground_pixel_m) if len(craters) else 0
+    single = max(info.height, info.width) <= tile_size
+    overlap = 0 if single else int(math.ceil(1.25 * max_d_px))
+    specs = plan_tiles(info, max(info.height, info.width) if single else tile_size, overlap)
+    # Craters whose centre is outside the raster are reported, not silently dropped.
+    inv = ~info.transform
+    col = inv.c + inv.a * craters["x"].to_numpy(float) + inv.b * craters["y"].to_numpy(float)
+    row = inv.f + inv.d * craters["x"].to_numpy(float) + inv.e * craters["y"].to_numpy(float)
+    inside = (row >= 0) & (row < info.height) & (col >= 0) & (col < info.width)
+    unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
+                  for c in craters.loc[~inside, "crater_id"]]
+    params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
+    run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
+                    workers=workers, scheduler=scheduler, progress=progress)
+    frames = [f for f in run.results if len(f)]
+    df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    if len(df) and "measure_status" in df:
+        bad = df["measure_status"].astype(str) != "ok"
+        unmeasured += [{"crater_id": str(c), "reason": str(r)}
+                       for c, r in zip(df.loc[bad, "crater_id"], df.loc[bad, "measure_status"], strict=True)]
+        df = df.loc[~bad].reset_index(drop=True)
+    if len(df):
+        df = _stable_order(df)
+    record = {
+        "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
+        "z_offset": info.z_offset, "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths,
+        "n_boot": n_boot, "workers": workers, "scheduler": scheduler, "n_listed": len(craters),
+        "bad_rows": bad_rows or {}, "unmeasured": unmeasured,
+    }
+    return _finish(df, info, seed=seed, model=model, params=record, t_start=t_start, started=started,
+                   failed=run.failed, command="measure", unmeasured=pd.DataFrame(unmeasured,
+                   columns=["crater_id", "reason"]))
