@@ -42,6 +42,7 @@ __all__ = [
     "fresh_impact_morphometry",
     "fresh_impact_profile",
     "crater_profile",
+    "limit_wall_exponent",
     "diffuse_radial_profile",
 ]
 
@@ -66,17 +67,17 @@ class ImpactLaws:
     depth_simple, rim_simple, depth_complex, rim_complex : PowerLaw
         Rim-crest-to-floor depth and rim height above the plain, per branch.
     floor_complex : PowerLaw
-        Floor diameter of complex craters, evaluated at the lunar-equivalent diameter
-        ``D * D_t,moon / D_t,body``.
+        Floor diameter of complex craters.
     peak_height_complex : PowerLaw
-        Central-peak height above the floor, evaluated at the lunar-equivalent diameter
-        and scaled by ``depth_body / depth_moon_equivalent``.
+        Central-peak height above the floor.
     peak_base_fraction : float
         Central-peak basal diameter / D.
     interior_exponent_simple : float
         Bowl shape: ``z = floor + d * r_norm**n`` (2 = paraboloid).
     wall_exponent_complex : float
         Wall shape between floor edge and rim, same form.
+    max_wall_slope_deg : float
+        The exponent is lowered where the steepest wall (at the rim) would exceed this.
     flank_exponent : float
         Rim flank ``h * r_norm**-n`` (McGetchin et al. 1973: n = 3).
     flank_outer : float
@@ -94,87 +95,47 @@ class ImpactLaws:
     peak_base_fraction: float = 0.22
     interior_exponent_simple: float = 2.0
     wall_exponent_complex: float = 1.6
+    max_wall_slope_deg: float = 90.0
     flank_exponent: float = 3.0
     flank_outer: float = 5.0
     source: str = ""
 
 
-#: Lunar transition diameter (m) used to map other bodies' complex craters onto lunar-equivalent size.
-_MOON_DT_M = 15_000.0
+def impact_laws(body: str | Body, hypothesis=None) -> ImpactLaws:
+    """Fresh-crater laws of ``body`` from an impact hypothesis (central values).
 
+    Parameters
+    ----------
+    body : str or Body
+        Body name or :class:`~morpho.bodies.Body`.
+    hypothesis : morpho.hypotheses.Hypothesis, optional
+        An ``origin = "impact"`` hypothesis; default: the shipped ``impact.toml``.
 
-def _moon_like(**changes) -> ImpactLaws:
-    base = dict(
-        depth_simple=PowerLaw(0.196, 1.010),  # Pike 1977, from memory
-        rim_simple=PowerLaw(0.036, 1.014),  # Pike 1977, from memory
-        depth_complex=PowerLaw(1.044, 0.301),  # Pike 1977, from memory
-        rim_complex=PowerLaw(0.236, 0.399),  # Pike 1977, from memory
-        floor_complex=PowerLaw(0.187, 1.249),  # Pike 1977, from memory, UNCERTAIN
-        peak_height_complex=PowerLaw(0.0049, 1.297),  # Hale & Head 1979, from memory, UNCERTAIN
-        source="Pike 1977 (Moon), from memory; McGetchin et al. 1973 flank; peak: Hale & Head 1979 "
-        "Proc. LPSC 10, from memory, uncertain.",
-    )
-    base.update(changes)
-    return ImpactLaws(**base)
+    Raises
+    ------
+    HypothesisFileError
+        If the hypothesis has no ``[laws.<body>]`` table.
+    """
+    from .errors import HypothesisFileError
+    from .hypotheses import default_hypotheses
 
-
-def _scaled_rim(depth: PowerLaw, moon_depth: PowerLaw, moon_rim: PowerLaw) -> PowerLaw:
-    """Rim law with the lunar rim/depth ratio: h = d * (h_moon / d_moon) (an assumption)."""
-    return PowerLaw(depth.a * moon_rim.a / moon_depth.a, depth.b + moon_rim.b - moon_depth.b)
-
-
-_MOON = _moon_like()
-
-#: Built-in fallback laws per body. The generator normally takes them from ``impact.toml``.
-_DEFAULT_LAWS: dict[str, ImpactLaws] = {
-    "moon": _MOON,
-    "mars": _moon_like(
-        depth_simple=PowerLaw(0.14, 0.90),  # Garvin & Frawley 1998 GRL 25 (verified)
-        depth_complex=PowerLaw(0.25, 0.49),  # Garvin & Frawley 1998 GRL 25 (verified)
-        rim_simple=_scaled_rim(PowerLaw(0.14, 0.90), _MOON.depth_simple, _MOON.rim_simple),
-        rim_complex=_scaled_rim(PowerLaw(0.25, 0.49), _MOON.depth_complex, _MOON.rim_complex),
-        source="depth: Garvin & Frawley 1998 GRL 25; rim: lunar h/d ratio (assumption); "
-        "floor/peak: lunar laws at lunar-equivalent D (assumption).",
-    ),
-    "mercury": _moon_like(
-        depth_simple=PowerLaw(0.199, 0.995),  # Pike 1988, from memory, UNCERTAIN
-        depth_complex=PowerLaw(0.353, 0.496),  # Pike 1988, from memory, UNCERTAIN
-        rim_simple=_scaled_rim(PowerLaw(0.199, 0.995), _MOON.depth_simple, _MOON.rim_simple),
-        rim_complex=_scaled_rim(PowerLaw(0.353, 0.496), _MOON.depth_complex, _MOON.rim_complex),
-        source="depth: Pike 1988 in Mercury (UAz Press), from memory, uncertain; rim: lunar h/d "
-        "ratio (assumption).",
-    ),
-    "earth": _moon_like(
-        depth_complex=PowerLaw(0.4, 0.3),  # Collins et al. 2005 MAPS 40, from memory
-        rim_complex=_scaled_rim(PowerLaw(0.4, 0.3), _MOON.depth_complex, _MOON.rim_complex),
-        source="simple: lunar Pike 1977 (assumption); complex depth: Collins et al. 2005 MAPS 40, "
-        "from memory; rim: lunar h/d ratio (assumption).",
-    ),
-}
-
-
-def _transition_scaled(name: str) -> ImpactLaws:
-    """Lunar laws with complex-crater d/D and h/D taken at the lunar-equivalent diameter
-    ``D * D_t,moon / D_t,body`` (an assumption in the spirit of Pike 1980)."""
-    s = _MOON_DT_M / get_body(name).transition_diameter_m
-    return _moon_like(
-        depth_complex=PowerLaw(_MOON.depth_complex.a * s ** (_MOON.depth_complex.b - 1.0),
-                               _MOON.depth_complex.b),
-        rim_complex=PowerLaw(_MOON.rim_complex.a * s ** (_MOON.rim_complex.b - 1.0),
-                             _MOON.rim_complex.b),
-        source="lunar Pike 1977 laws; complex branch at the lunar-equivalent diameter "
-        "(assumption; icy craters are shallower than this).",
-    )
-
-
-for _name in ("ganymede", "callisto"):
-    _DEFAULT_LAWS[_name] = _transition_scaled(_name)
-
-
-def impact_laws(body: str | Body) -> ImpactLaws:
-    """Return the built-in fresh-crater laws of ``body`` (name or :class:`~morpho.bodies.Body`)."""
     b = body if isinstance(body, Body) else get_body(body)
-    return _DEFAULT_LAWS.get(b.name, _DEFAULT_LAWS["moon"])
+    h = default_hypotheses()["impact"] if hypothesis is None else hypothesis
+    if b.name not in h.laws:
+        raise HypothesisFileError(
+            f"[laws.{b.name}] missing: the impact hypothesis has no laws for {b.name!r}.",
+            path=h.path or None, fix=f"add a [laws.{b.name}] table (copy [laws.moon] and cite a source).")
+    laws = {k: PowerLaw(*p.central) for k, p in h.laws[b.name].items()}
+    return ImpactLaws(
+        **laws,
+        peak_base_fraction=float(h.central("profile", "central_feature_base_fraction")),
+        interior_exponent_simple=float(h.central("profile", "interior_exponent")),
+        wall_exponent_complex=float(h.central("profile", "wall_exponent_complex")),
+        max_wall_slope_deg=float(h.central("profile", "max_wall_slope_deg")),
+        flank_exponent=float(h.central("profile", "flank_exponent")),
+        flank_outer=float(h.central("profile", "flank_outer")),
+        source="; ".join(sorted({p.source for p in h.laws[b.name].values()})),
+    )
 
 
 @dataclass(frozen=True)
@@ -207,7 +168,7 @@ def fresh_impact_morphometry(diameter_m, body: str | Body, *, laws: ImpactLaws |
     body : str or Body
         Body name in :data:`morpho.bodies.BODIES` or a ``Body``.
     laws : ImpactLaws, optional
-        Override the built-in laws (e.g. sampled from a hypothesis file).
+        Override the laws (default: :func:`impact_laws` of the shipped ``impact.toml``).
 
     Returns
     -------
@@ -223,26 +184,36 @@ def fresh_impact_morphometry(diameter_m, body: str | Body, *, laws: ImpactLaws |
     is_complex = D >= b.transition_diameter_m
     depth = np.where(is_complex, lw.depth_complex(Dkm), lw.depth_simple(Dkm)) * 1000.0
     rim = np.where(is_complex, lw.rim_complex(Dkm), lw.rim_simple(Dkm)) * 1000.0
-    # Complex-crater floor and peak: lunar laws at the lunar-equivalent diameter (Pike 1980:
-    # morphology scales with the transition diameter).
-    d_eq_km = Dkm * _MOON_DT_M / b.transition_diameter_m
-    floor = np.clip(lw.floor_complex(d_eq_km) / d_eq_km, 0.0, 0.75)
-    moon_depth_eq = _MOON.depth_complex(d_eq_km) * 1000.0
-    peak = lw.peak_height_complex(d_eq_km) * 1000.0 * depth / moon_depth_eq
-    peak = np.minimum(peak, 0.8 * depth)
+    floor = np.where(is_complex, np.clip(lw.floor_complex(Dkm) / Dkm, 0.0, 0.75), 0.0)
+    peak = np.where(is_complex, np.minimum(lw.peak_height_complex(Dkm) * 1000.0, 0.8 * depth), 0.0)
+    n = np.where(is_complex, lw.wall_exponent_complex, lw.interior_exponent_simple)
+    n = limit_wall_exponent(n, depth / D, floor, lw.max_wall_slope_deg)
     zero = np.zeros_like(D)
     return FreshMorphometry(
         diameter_m=D,
         depth_m=depth,
         rim_height_m=rim,
         complex=is_complex,
-        floor_fraction=np.where(is_complex, floor, zero),
-        peak_height_m=np.where(is_complex, peak, zero),
+        floor_fraction=floor,
+        peak_height_m=peak,
         peak_base_fraction=np.where(is_complex, lw.peak_base_fraction, zero),
-        interior_exponent=np.where(is_complex, lw.wall_exponent_complex, lw.interior_exponent_simple),
+        interior_exponent=n,
         flank_exponent=lw.flank_exponent,
         flank_outer=lw.flank_outer,
     )
+
+
+def limit_wall_exponent(exponent, depth_diameter, floor_fraction, max_wall_slope_deg):
+    """Lower the wall exponent where the steepest wall slope would exceed ``max_wall_slope_deg``.
+
+    For ``z = floor + d * s**n`` the slope is steepest at the rim crest:
+    ``n * d / (R * (1 - f))``. The exponent is kept >= 1 (a cone).
+    """
+    d_over_r = 2.0 * np.asarray(depth_diameter, dtype=np.float64)
+    span = 1.0 - np.asarray(floor_fraction, dtype=np.float64)
+    with np.errstate(divide="ignore"):
+        n_max = np.tan(np.radians(max_wall_slope_deg)) * span / d_over_r
+    return np.clip(np.minimum(exponent, n_max), 1.0, None)
 
 
 def crater_profile(
@@ -295,18 +266,18 @@ def crater_profile(
     rw = np.asarray(rim_width, dtype=np.float64)
     rr = np.maximum(r, 1.0)
     power = h * (rr**-fe - ro**-fe) / (1.0 - ro**-fe)
-    power = np.where(rr < ro, power, 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         lip = h * np.exp(-(((rr - 1.0) / np.where(rw > 0, rw, 1.0)) ** 2))
-    exterior = np.where(rw > 0, lip, power)
+    exterior = np.where(rr < ro, np.where(rw > 0, lip, power), 0.0)
     return np.where(r <= 1.0, interior, exterior)
 
 
 def fresh_impact_profile(r_norm, diameter_m, body: str | Body, *, laws: ImpactLaws | None = None):
     """Radial elevation profile (m, relative to the pre-impact plain) of a fresh impact crater.
 
-    Simple craters (``D`` below the body's transition diameter) are paraboloid bowls with
-    Pike-law depth and rim height; complex craters have a flat floor, a central peak and
+    Simple craters (``D`` below the body's transition diameter) are paraboloid-like bowls
+    with Pike-law depth and rim height (wall exponent lowered where the wall would be
+    steeper than the hypothesis' ``max_wall_slope_deg``); complex craters have a flat floor, a central peak and
     the lower complex-branch d/D. The rim flank decays as ``(r/R)**-3`` (McGetchin et al.
     1973), tapered to zero at 5 R.
 
@@ -319,7 +290,8 @@ def fresh_impact_profile(r_norm, diameter_m, body: str | Body, *, laws: ImpactLa
     body : str or Body
         Body name or :class:`~morpho.bodies.Body`.
     laws : ImpactLaws, optional
-        Override the built-in laws.
+        Override the laws (default: central values of the shipped ``impact.toml``,
+        see :func:`impact_laws`).
 
     Returns
     -------
