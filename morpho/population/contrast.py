@@ -1,0 +1,2 @@
+def contrast_regions(*a, **k):
+    raise NotImplementedError

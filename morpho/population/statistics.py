@@ -1,0 +1,246 @@
+"""One call for all population statistics of a survey: the ``population`` layer rows."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ..errors import InputError
+from .alignments import ALIGNMENT_REFERENCE, aligned_triplets, extract_chains
+from .clusters import DBSCAN_REFERENCE, dbscan_clusters
+from .csr import check_area, check_points, simulate_csr
+from .nearest_neighbour import CLARK_EVANS_REFERENCE, clark_evans, csr_mean_nn_distance
+from .orientation import RAYLEIGH_REFERENCE, axial_rayleigh
+from .production import NEUKUM_REFERENCE, production_function_fit
+from .ripley import RIPLEY_REFERENCE, besag_l, default_radii, pair_correlation, ripley_k
+from .sfd import (
+    CATWG_REFERENCE,
+    CLAUSET_REFERENCE,
+    estimate_completeness,
+    powerlaw_slope_ml,
+    sfd_table,
+)
+from .superposition import SUPERPOSITION_REFERENCE, on_larger_rim
+
+__all__ = ["PopulationResult", "population_statistics", "STAT_COLUMNS", "ELONGATED"]
+
+STAT_COLUMNS = ("statistic", "value", "p_value", "n", "method", "reference")
+#: Craters with ellipticity (long/short axis) below this carry no usable azimuth.
+ELONGATED = 1.1
+_MC = "Monte Carlo p-value (1 + #{sim >= obs})/(1 + n_sim) against CSR simulated inside the valid-data mask"
+_MC_REF = "Besag & Diggle 1977, Appl. Stat. 26:327 (Monte Carlo tests)"
+
+
+@dataclass
+class PopulationResult:
+    """Population statistics of one survey.
+
+    Attributes
+    ----------
+    stats : pandas.DataFrame
+        One row per statistic: ``statistic, value, p_value, n, method, reference``.
+    cluster_id : numpy.ndarray of int64, shape (n_input,)
+        DBSCAN cluster per input crater, -1 for none or below completeness.
+    chain_id : numpy.ndarray of int64, shape (n_input,)
+        Chain per input crater, -1 for none or below completeness.
+    chains : list of dict
+        ``chain_id, n_craters, length_m, azimuth_deg, geometry`` (shapely LineString in
+        the input coordinates); ready for ``geopandas.GeoDataFrame(chains)``.
+    n_craters : int
+        Craters at or above the completeness diameter (those the statistics use).
+    completeness_diameter_m : float
+    sfd : pandas.DataFrame
+        Root-2 SFD table of all input craters (see :func:`morpho.population.sfd.sfd_table`).
+    envelope : pandas.DataFrame
+        ``r_m, L_m, L_low_m, L_high_m, L_mean_m`` for plotting Besag's L with its envelope.
+    """
+
+    stats: pd.DataFrame
+    cluster_id: np.ndarray
+    chain_id: np.ndarray
+    chains: list
+    n_craters: int
+    completeness_diameter_m: float
+    sfd: pd.DataFrame
+    envelope: pd.DataFrame = field(default_factory=pd.DataFrame)
+
+    def stat(self, name: str) -> float:
+        """Value of statistic ``name``."""
+        return float(self.stats.loc[self.stats["statistic"] == name, "value"].iloc[0])
+
+    def p(self, name: str) -> float:
+        """p-value of statistic ``name``."""
+        return float(self.stats.loc[self.stats["statistic"] == name, "p_value"].iloc[0])
+
+
+def _mc_p(observed: float, simulated: np.ndarray) -> float:
+    if not np.isfinite(observed):
+        return np.nan
+    return float((1 + np.sum(simulated >= observed)) / (1 + simulated.size))
+
+
+def _spatial_measures(x, y, d, valid_area, radii, min_link):
+    """Statistics recomputed on every CSR simulation, as a dict of scalars."""
+    area = valid_area.area
+    k = ripley_k(x, y, valid_area, radii)
+    _, g = pair_correlation(radii, k)
+    labels = dbscan_clusters(x, y, area)
+    tri = aligned_triplets(x, y, d, min_link_m=min_link)
+    rim = on_larger_rim(x, y, d)
+    return {
+        "L": besag_l(k), "g_peak": float(np.nanmax(g)) if np.any(np.isfinite(g)) else np.nan,
+        "n_clusters": float(labels.max() + 1), "clustered": float(np.mean(labels >= 0)),
+        "triplets": float(len(tri)), "rim_share": float(np.mean(rim)),
+        "_labels": labels, "_tri": tri,
+    }
+
+
+def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_deg=None, ellipticity=None,
+                          completeness_diameter_m=None, n_simulations: int = 99, seed=0) -> PopulationResult:
+    """Size-frequency, spatial-randomness, clustering, alignment and superposition statistics.
+
+    Statistics use the craters at or above the completeness diameter; p-values of the
+    spatial statistics come from CSR simulated inside ``valid_area`` with the observed
+    diameters, except Clark-Evans (Donnelly's normal approximation) and the Rayleigh
+    and production-function tests (analytic).
+
+    Parameters
+    ----------
+    x_m, y_m : array_like, shape (n,)
+        Crater centres in a local metric plane (m), e.g. from
+        :func:`morpho.population.to_local_metric`.
+    diameter_m : array_like, shape (n,)
+        Rim-crest diameters (m).
+    valid_area : shapely.Polygon or shapely.MultiPolygon
+        Valid-data footprint in the same plane; all areas come from it.
+    ellipse_azimuth_deg, ellipticity : array_like, shape (n,), optional
+        Long-axis azimuth (degrees) and long/short axis ratio of each crater, for the
+        axial Rayleigh test of elongation (craters with ellipticity >= 1.1 only).
+    completeness_diameter_m : float, optional
+        Set the completeness limit; default from the SFD roll-over.
+    n_simulations : int
+        CSR simulations for the Monte Carlo tests (99 gives p >= 0.01).
+    seed : int or numpy.random.Generator
+        Randomness of the simulations.
+
+    Returns
+    -------
+    PopulationResult
+
+    References
+    ----------
+    See the ``reference`` column of ``stats``; Besag J., Diggle P.J. (1977) Simple Monte
+    Carlo tests for spatial pattern, Applied Statistics 26:327-333.
+    """
+    x, y, d = check_points(x_m, y_m, diameter_m, names=("x_m", "y_m", "diameter_m"))
+    valid_area = check_area(valid_area)
+    if np.any(d <= 0):
+        raise InputError("diameter_m must be positive.", fix="drop craters without a measured diameter")
+    n_all = x.size
+    area = valid_area.area
+    dc = estimate_completeness(d) if completeness_diameter_m is None else float(completeness_diameter_m)
+    keep = d >= dc if n_all else np.zeros(0, bool)
+    xs, ys, ds = x[keep], y[keep], d[keep]
+    n = xs.size
+    rows = []
+
+    def add(name, value, p, count, method, reference):
+        rows.append((name, float(value), float(p), int(count), method, reference))
+
+    add("n_craters", n, np.nan, n, "craters with diameter >= completeness diameter", "common practice")
+    add("completeness_diameter_m", dc, np.nan, n_all,
+        "lower edge of the modal root-2 bin (SFD roll-over)" if completeness_diameter_m is None
+        else "set by the user", CATWG_REFERENCE)
+    add("crater_density_per_km2", n / (area / 1e6), np.nan, n,
+        "N(>= completeness diameter) / valid-data area", CATWG_REFERENCE)
+    fit = powerlaw_slope_ml(d, dc) if n_all else powerlaw_slope_ml([], 1.0)
+    add("csfd_slope", fit.cumulative_slope, np.nan, fit.n,
+        "cumulative log-log slope 1 - alpha; alpha by maximum likelihood above completeness", CLAUSET_REFERENCE)
+    add("csfd_slope_err", fit.cumulative_slope_err, np.nan, fit.n,
+        "standard error (alpha - 1)/sqrt(n)", CLAUSET_REFERENCE)
+    pf = production_function_fit(d, area, dc) if n_all else production_function_fit([], area, 1.0)
+    add("production_function_ks", pf.ks_statistic, pf.p_value, pf.n,
+        "one-sample Kolmogorov-Smirnov of diameters above completeness against the production-function "
+        "shape, normalisation fitted", NEUKUM_REFERENCE)
+    add("production_function_n1_per_km2", pf.n1_per_km2, np.nan, pf.n,
+        "production function N(>=1 km) scaled to the count above completeness", NEUKUM_REFERENCE)
+
+    ce = clark_evans(xs, ys, area, valid_area.length)
+    add("clark_evans_R", ce.R, ce.p_value, n,
+        "mean nearest-neighbour distance / Donnelly edge-corrected CSR expectation; two-sided normal test",
+        CLARK_EVANS_REFERENCE)
+    add("clark_evans_z", ce.z, ce.p_value, n, "normal deviate of the mean nearest-neighbour distance",
+        CLARK_EVANS_REFERENCE)
+
+    cluster_id = np.full(n_all, -1, dtype=np.int64)
+    chain_id = np.full(n_all, -1, dtype=np.int64)
+    chains: list = []
+    envelope = pd.DataFrame()
+    if n >= 5:
+        rng = np.random.default_rng(seed)
+        radii = default_radii(valid_area)
+        min_link = csr_mean_nn_distance(n / area)
+        obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link)
+        sims = simulate_csr(valid_area, n, n_simulations, rng=rng)
+        sim = [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims]
+        l_sim = np.array([s["L"] for s in sim])
+        l_mean = np.nanmean(l_sim, axis=0)
+        dev_sim = np.nanmax(np.abs(l_sim - l_mean), axis=1)
+        dev_obs = float(np.nanmax(np.abs(obs["L"] - l_mean)))
+        envelope = pd.DataFrame({"r_m": radii, "L_m": obs["L"], "L_low_m": np.nanmin(l_sim, axis=0),
+                                 "L_high_m": np.nanmax(l_sim, axis=0), "L_mean_m": l_mean})
+        add("ripley_L_max_deviation", dev_obs, _mc_p(dev_obs, dev_sim), n,
+            f"max over r <= {radii[-1]:.4g} m of |L(r) - mean simulated L(r)| (m), border-corrected K; "
+            "global deviation test", RIPLEY_REFERENCE)
+        simulated = {key: np.array([s[key] for s in sim]) for key in ("g_peak", "n_clusters", "clustered",
+                                                                       "triplets", "rim_share")}
+        add("pair_correlation_peak", obs["g_peak"], _mc_p(obs["g_peak"], simulated["g_peak"]), n,
+            "maximum of g(r) = K'(r)/(2 pi r) over the K radii; " + _MC, RIPLEY_REFERENCE)
+        add("dbscan_n_clusters", obs["n_clusters"], _mc_p(obs["n_clusters"], simulated["n_clusters"]), n,
+            "DBSCAN clusters, eps = CSR mean nearest-neighbour distance 0.5/sqrt(n/A), min_samples 5; " + _MC,
+            DBSCAN_REFERENCE)
+        add("dbscan_clustered_fraction", obs["clustered"], _mc_p(obs["clustered"], simulated["clustered"]), n,
+            "share of craters in a DBSCAN cluster; " + _MC, DBSCAN_REFERENCE)
+        add("aligned_triplets", obs["triplets"], _mc_p(obs["triplets"], simulated["triplets"]), n,
+            "neighbouring triplets whose middle centre is within 0.25 mean diameter of the line through the "
+            "outer two; " + _MC, ALIGNMENT_REFERENCE)
+        add("alignment_excess", obs["triplets"] - simulated["triplets"].mean(),
+            _mc_p(obs["triplets"], simulated["triplets"]), n,
+            "aligned triplets observed minus the CSR mean; " + _MC, ALIGNMENT_REFERENCE)
+        add("rim_superposition_share", obs["rim_share"], _mc_p(obs["rim_share"], simulated["rim_share"]), n,
+            "share of craters centred within +-10 % of the radius of a larger crater's rim; " + _MC,
+            SUPERPOSITION_REFERENCE)
+        add("rim_superposition_excess", obs["rim_share"] - simulated["rim_share"].mean(),
+            _mc_p(obs["rim_share"], simulated["rim_share"]), n,
+            "rim-superposed share observed minus the CSR mean; " + _MC, SUPERPOSITION_REFERENCE)
+        cluster_id[keep] = obs["_labels"]
+        chain_sub, chains = extract_chains(xs, ys, obs["_tri"])
+        chain_id[keep] = chain_sub
+    else:
+        for name in ("ripley_L_max_deviation", "pair_correlation_peak", "dbscan_n_clusters",
+                     "dbscan_clustered_fraction", "aligned_triplets", "alignment_excess",
+                     "rim_superposition_share", "rim_superposition_excess"):
+            add(name, np.nan, np.nan, n, "fewer than 5 craters above completeness", "common practice")
+    add("n_chains", len(chains), np.nan, n, "chains of >= 5 craters joined from aligned triplets sharing two craters",
+        ALIGNMENT_REFERENCE)
+    ray = axial_rayleigh([c["azimuth_deg"] for c in chains])
+    add("chain_azimuth_rayleigh_rbar", ray.rbar, ray.p_value, ray.n,
+        "axial Rayleigh test on doubled chain azimuths", RAYLEIGH_REFERENCE)
+    add("chain_mean_azimuth_deg", ray.mean_axis_deg, np.nan, ray.n, "mean chain axis, clockwise from +y",
+        RAYLEIGH_REFERENCE)
+    if ellipse_azimuth_deg is not None:
+        az = np.asarray(ellipse_azimuth_deg, float)[keep]
+        if ellipticity is not None:
+            az = az[np.asarray(ellipticity, float)[keep] >= ELONGATED]
+        ray = axial_rayleigh(az)
+        add("elongation_rayleigh_rbar", ray.rbar, ray.p_value, ray.n,
+            f"axial Rayleigh test on doubled long-axis azimuths of craters with ellipticity >= {ELONGATED}",
+            RAYLEIGH_REFERENCE)
+        add("elongation_mean_azimuth_deg", ray.mean_axis_deg, np.nan, ray.n, "mean long-axis azimuth",
+            RAYLEIGH_REFERENCE)
+    stats_df = pd.DataFrame(rows, columns=list(STAT_COLUMNS))
+    table = sfd_table(d, area)
+    return PopulationResult(stats=stats_df, cluster_id=cluster_id, chain_id=chain_id, chains=chains, n_craters=n,
+                            completeness_diameter_m=dc, sfd=table, envelope=envelope)
