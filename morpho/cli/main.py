@@ -46,6 +46,16 @@ class _Group(click.Group):
                 logging.getLogger("morpho").exception("failed")
             click.echo(f"morpho: error: {err}", err=True)
             ctx.exit(err.exit_code)
+        except (click.exceptions.ClickException, click.exceptions.Exit, click.exceptions.Abort):
+            raise
+        except Exception as err:  # noqa: BLE001 - never a bare traceback for a user
+            verbose = (ctx.obj or {}).get("verbose", 0)
+            if verbose:
+                logging.getLogger("morpho").exception("failed")
+            first = str(err).splitlines()[0] if str(err) else ""
+            click.echo(f"morpho: internal error: {type(err).__name__}: {first} "
+                       "(rerun with -v for the traceback and report it)", err=True)
+            ctx.exit(1)
 
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
