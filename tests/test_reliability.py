@@ -16,6 +16,7 @@ from .test_survey_geometry import pike_bowl
 
 SPACING = 50.0
 # (row, col, diameter_m): fresh simple craters, Pike 1977 shapes
+GRID = Affine(SPACING, 0, 0, 0, -SPACING, 0)
 CRATERS = [(70.0, 70.0, 2000.0), (170.0, 90.0, 1500.0), (110.0, 185.0, 2500.0)]
 
 
@@ -29,12 +30,12 @@ def crater_field(n=256, offset=0.0, roughness=2.0, seed=0, craters=CRATERS):
 
 
 def _write(tmp_path, name, z, **kw):
-    kw.setdefault("transform", Affine(SPACING, 0, 0, 0, -SPACING, 0))
+    kw.setdefault("transform", GRID)
     return write_raster(tmp_path / name, z, crs=MOON_STERE, **kw)
 
 
-def _match(craters, r0, c0, d, transform=Affine(SPACING, 0, 0, 0, -SPACING, 0)):
-    x, y = transform * (c0 + 0.5, r0 + 0.5)
+def _match(craters, r0, c0, d):
+    x, y = GRID @ (c0 + 0.5, r0 + 0.5)
     dist = np.hypot(craters["center_x"] - x, craters["center_y"] - y)
     i = int(np.argmin(dist))
     assert dist.iloc[i] < 0.25 * d, f"crater at ({r0}, {c0}) not found"
