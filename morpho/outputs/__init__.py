@@ -1,0 +1,21 @@
+"""Everything morpho writes: the survey GeoPackage, feature exports and the HTML report.
+
+This is the only package (with the synthetic-surface writer) that writes files.
+Every writer checks its inputs first, writes to a temporary file beside the
+target and renames it into place, and never replaces an existing file unless
+``overwrite=True``. Every output carries the caveats of :mod:`morpho.caveats`.
+"""
+
+from __future__ import annotations
+
+from ._geopackage import LAYERS, SurveyOutput, read_survey, write_geopackage
+from ._provenance import run_provenance, sha256_file
+
+__all__ = [
+    "LAYERS",
+    "SurveyOutput",
+    "write_geopackage",
+    "read_survey",
+    "run_provenance",
+    "sha256_file",
+]
