@@ -46,5 +46,5 @@ def command(ctx, dem, crater_list, output, overwrite, body, band, pixel_size, z_
     write_geopackage(out, result.craters, population=result.population, chains=result.chains,
                      footprint=result.footprint, run=result.run, overwrite=overwrite)
     if not quiet:
-        px = int(result.run.get("raster_width", 0) or 0) * int(result.run.get("raster_height", 0) or 0)
+        px = int(result.run.get("raster_rows", 0) or 0) * int(result.run.get("raster_cols", 0) or 0)
         print_summary(result, Path(out), time.perf_counter() - t0, px)

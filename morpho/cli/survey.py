@@ -60,7 +60,7 @@ def command(ctx, dem, output, overwrite, body, band, pixel_size, z_scale, z_offs
         shutil.rmtree(run_dir, ignore_errors=True)
     seconds = time.perf_counter() - t0
     if not quiet:
-        info_px = int(result.run.get("raster_width", 0) or 0) * int(result.run.get("raster_height", 0) or 0)
+        info_px = int(result.run.get("raster_rows", 0) or 0) * int(result.run.get("raster_cols", 0) or 0)
         print_summary(result, Path(out), seconds, info_px)
     if result.partial:
         ctx.exit(EXIT_PARTIAL)

@@ -231,9 +231,13 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, 
     footprint = gpd.GeoDataFrame({"name": ["valid_data"]}, geometry=[footprint_src], crs=_crs_for_output(info))
     seconds = time.perf_counter() - t_start
     run = run_provenance(
-        info=info, params=params, seed=seed, model_path=model_path, started=started,
-        finished=datetime.now(UTC).isoformat(timespec="seconds"), failed_tiles=failed,
-        command=command, n_craters=len(craters), seconds=seconds,
+        info.path, command=command, parameters=params, raster_size=(info.height, info.width),
+        crs=info.crs, body=info.body, seed=seed, model_path=model_path, start_time=started,
+        end_time=datetime.now(UTC).isoformat(timespec="seconds"),
+        tiles_failed=[f"{k}: {v}" for k, v in sorted(failed.items())],
+        extra={"n_craters": len(craters), "n_tiles": params.get("n_tiles", ""),
+               "seconds": round(seconds, 3), "ground_pixel_m": list(info.ground_pixel_m),
+               "warped_to_local_stereographic": info.needs_warp},
     )
     return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured)
 
