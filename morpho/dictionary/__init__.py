@@ -10,7 +10,16 @@ from __future__ import annotations
 from . import _core, _morphometry, _population, _scaling, _scores
 from ._field import Field
 
-__all__ = ["Field", "FIELDS", "CRATER_COLUMNS", "POPULATION_FIELDS", "get_field", "dictionary_table"]
+__all__ = [
+    "Field",
+    "FIELDS",
+    "CRATER_FIELDS",
+    "CRATER_COLUMNS",
+    "POPULATION_FIELDS",
+    "CHAIN_FIELDS",
+    "get_field",
+    "dictionary_table",
+]
 
 
 def _expand(fields):
@@ -24,10 +33,12 @@ def _expand(fields):
 
 #: Columns of the ``craters`` layer, in export order.
 CRATER_FIELDS: tuple[Field, ...] = _expand(
-    _core.FIELDS + _morphometry.FIELDS + _scaling.FIELDS + _scores.FIELDS
+    _core.FIELDS + _morphometry.FIELDS + _scaling.FIELDS + _scores.FIELDS + _population.CRATER_FIELDS
 )
 #: Columns of the ``population`` layer.
 POPULATION_FIELDS: tuple[Field, ...] = tuple(_population.FIELDS)
+#: Columns of the ``chains`` layer.
+CHAIN_FIELDS: tuple[Field, ...] = tuple(_population.CHAIN_FIELDS)
 
 FIELDS: dict[str, Field] = {f.name: f for f in CRATER_FIELDS}
 if len(FIELDS) != len(CRATER_FIELDS):  # pragma: no cover - guards editing mistakes

@@ -181,13 +181,18 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
     ell = craters["ellipticity"].to_numpy(float) if "ellipticity" in craters else None
     res = population_statistics(x, y, craters["diameter_m"].to_numpy(float), area,
                                 ellipse_azimuth_deg=az, ellipticity=ell, seed=seed)
-    lines = [c["geometry"] if isinstance(c, dict) else c for c in (res.chains or [])]
+    records = [dict(c) for c in (res.chains or [])]
+    lines = [r.pop("geometry") for r in records]
     if metric is not None and lines:
         back = pyproj.Transformer.from_crs(metric, info.crs, always_xy=True)
         lines = [shapely.transform(g, lambda xy: np.column_stack(back.transform(xy[:, 0], xy[:, 1])))
                  for g in lines]
-    chains = gpd.GeoDataFrame({"chain_id": np.arange(len(lines), dtype="int64")},
-                              geometry=gpd.GeoSeries(lines, crs=_crs_for_output(info)),
+    from ..dictionary import CHAIN_FIELDS
+
+    attrs = pd.DataFrame.from_records(records, columns=[f.name for f in CHAIN_FIELDS])
+    for f in CHAIN_FIELDS:
+        attrs[f.name] = attrs[f.name].astype(f.dtype)
+    chains = gpd.GeoDataFrame(attrs, geometry=gpd.GeoSeries(lines, crs=_crs_for_output(info)),
                               crs=_crs_for_output(info))
     return res, chains
 
