@@ -166,6 +166,17 @@ def _empty_craters(info: DemInfo) -> gpd.GeoDataFrame:
                             crs=_crs_for_output(info))
 
 
+def _chains_frame(records: list, lines: list, info: DemInfo) -> gpd.GeoDataFrame:
+    """The ``chains`` layer: one line per chain with the dictionary's chain columns."""
+    from ..dictionary import CHAIN_FIELDS
+
+    attrs = pd.DataFrame.from_records(records, columns=[f.name for f in CHAIN_FIELDS])
+    for f in CHAIN_FIELDS:
+        attrs[f.name] = attrs[f.name].astype(f.dtype)
+    crs = _crs_for_output(info)
+    return gpd.GeoDataFrame(attrs, geometry=gpd.GeoSeries(lines, crs=crs), crs=crs)
+
+
 def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
     """Population statistics on the merged table; chains mapped back to the DEM's CRS."""
     from ..population import population_statistics
@@ -187,13 +198,7 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
         back = pyproj.Transformer.from_crs(metric, info.crs, always_xy=True)
         lines = [shapely.transform(g, lambda xy: np.column_stack(back.transform(xy[:, 0], xy[:, 1])))
                  for g in lines]
-    from ..dictionary import CHAIN_FIELDS
-
-    attrs = pd.DataFrame.from_records(records, columns=[f.name for f in CHAIN_FIELDS])
-    for f in CHAIN_FIELDS:
-        attrs[f.name] = attrs[f.name].astype(f.dtype)
-    chains = gpd.GeoDataFrame(attrs, geometry=gpd.GeoSeries(lines, crs=_crs_for_output(info)),
-                              crs=_crs_for_output(info))
+    chains = _chains_frame(records, lines, info)
     return res, chains
 
 
@@ -230,9 +235,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, 
         population = pd.DataFrame({"statistic": pd.Series([], dtype=str), "value": pd.Series([], dtype=float),
                                    "p_value": pd.Series([], dtype=float), "n": pd.Series([], dtype="int64"),
                                    "method": pd.Series([], dtype=str), "reference": pd.Series([], dtype=str)})
-        chains = gpd.GeoDataFrame({"chain_id": pd.Series([], dtype="int64")},
-                                  geometry=gpd.GeoSeries([], crs=_crs_for_output(info)),
-                                  crs=_crs_for_output(info))
+        chains = _chains_frame([], [], info)
     footprint = gpd.GeoDataFrame({"name": ["valid_data"]}, geometry=[footprint_src], crs=_crs_for_output(info))
     seconds = time.perf_counter() - t_start
     run = run_provenance(
