@@ -80,3 +80,7 @@ def cli(ctx, verbose, quiet):
 
 def main():  # pragma: no cover - console entry point
     cli(prog_name="morpho")
+
+
+if __name__ == "__main__":  # pragma: no cover - `python -m morpho.cli.main`
+    main()
