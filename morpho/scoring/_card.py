@@ -1,0 +1,162 @@
+"""The model card: what a scoring model was trained on, how well it does, and where it fails.
+
+The card is a JSON-serialisable dict (stored inside the model file and written beside
+it as ``<name>.card.json``) rendered to Markdown (``<name>.card.md``).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["DESIGN", "FAILURE_MODES", "build_card", "render_card_markdown", "write_card", "card_paths"]
+
+DESIGN = (
+    "scikit-learn estimator ImpactSpotClassifier. p_impact: HistGradientBoostingClassifier "
+    "(native NaN handling, so craters with an unmeasurable feature are still scored; trees need no "
+    "feature scaling and capture the non-linear, resolution-dependent feature-class relation) trained "
+    "impact vs all spot families with class-balanced sample weights, i.e. equal priors; calibrated by "
+    "CalibratedClassifierCV(method='sigmoid', cv=3, ensemble=False) - Platt scaling is smooth and strictly "
+    "monotone, so log10_lr stays finite and the occlusion attributions do not vanish on isotonic plateaus. "
+    "spot_family: a second class-balanced HistGradientBoostingClassifier on the spot families only. "
+    "typicality_*: conformal p-value of the 5-NN distance in robust z-scores, fitted on each hypothesis "
+    "separately (no Gaussian assumption; impact craters are multimodal, fresh to degraded, simple to "
+    "complex). Resolution: pixels_per_diameter is a feature of the classifier and training craters span "
+    "10-80 px per diameter; it is excluded from typicality (resolution is not morphology). Absolute sizes "
+    "(diameter_m, depth_m, ...) are not features: the spot families have no planetary size range, so a "
+    "size feature would only learn the generator's choice."
+)
+
+FAILURE_MODES = (
+    "Craters under ~20 px across: rim sharpness and wall shape are blurred away; p_impact is less "
+    "accurate and less well calibrated there (see the 10-20 px band).",
+    "Shapes outside both hypothesis files (volcanic pits, collapse pits, secondaries with odd outlines, "
+    "domes, buried or filled craters, craters on steep slopes) are forced to a likelihood ratio between "
+    "impact and spot; typicality (verdict 'neither') is the guard, but a 5-NN distance in many dimensions "
+    "can call an unusual yet real crater typical or atypical.",
+    "Heavily degraded impact craters lose the rim and bowl that separate them from shallow spot scars; "
+    "expect 'undecided' or low p_impact for them.",
+    "Overlapping craters and craters cut by the DEM edge or nodata: the features come from partial "
+    "profiles (check rim_coverage).",
+    "Everything is learnt from synthetic craters: a systematic difference between the generator and real "
+    "terrain (noise structure, background roughness, real degradation processes) shifts the scores.",
+    "The spot-family shapes at planetary scale, including their depth/diameter ratios, are assumptions; "
+    "p_spot_family tells the hypothesis files' families apart, not real discharge mechanisms.",
+)
+
+
+def build_card(
+    *,
+    name,
+    model,
+    hypotheses,
+    training,
+    metrics,
+    bowl_check=None,
+    rebuild_command,
+    training_time_s=None,
+):
+    """Assemble the model card as a dict.
+
+    Parameters
+    ----------
+    name : str
+    model : ImpactSpotClassifier (fitted)
+    hypotheses : list of dict
+        ``{"family", "file", "sha256"}`` per hypothesis file used.
+    training : dict
+        Training-set description (sizes per family, pixels-per-diameter bands, noise, body, seed).
+    metrics : list of dict
+        Held-out metrics by resolution band (:func:`morpho.scoring.metrics_by_band`).
+    bowl_check : dict, optional
+        Fresh Pike-shaped bowls on held-out DEMs: ``{"n", "share_p_impact_ge_0_5"}``.
+    rebuild_command : str
+    training_time_s : float, optional
+    """
+    from ..caveats import CAVEATS
+
+    return {
+        "name": name,
+        "estimator": type(model).__name__,
+        "design": DESIGN,
+        "hyper_parameters": {k: v for k, v in model.get_params().items()},
+        "priors": "equal (class-balanced weights): p_impact is the probability under 50:50 priors",
+        "classes": [str(c) for c in model.classes_],
+        "features": [str(f) for f in model.feature_names_in_],
+        "typicality_features": [str(f) for f, m in zip(model.feature_names_in_, model.typicality_mask_,
+                                                       strict=True) if m],
+        "thresholds": {
+            "typicality": model.TYPICALITY_THRESHOLD,
+            "abs_log10_lr": model.LR_THRESHOLD,
+            "verdict_rule": "neither: both typicalities < typicality threshold; impact: log10_lr >= "
+                            "threshold and typical of impact; discharge: log10_lr <= -threshold and typical "
+                            "of spot; otherwise undecided",
+        },
+        "hypotheses": list(hypotheses),
+        "training": dict(training),
+        "training_time_s": training_time_s,
+        "held_out_metrics": list(metrics),
+        "fresh_bowl_check": bowl_check,
+        "failure_modes": list(FAILURE_MODES),
+        "caveats": CAVEATS,
+        "rebuild_command": rebuild_command,
+    }
+
+
+def _fmt(v):
+    if isinstance(v, float):
+        return f"{v:.3f}"
+    return str(v)
+
+
+def render_card_markdown(card: dict) -> str:
+    """The card as Markdown."""
+    lines = [f"# Model card: {card.get('name', '?')}", ""]
+    lines += ["## What it is", "", card.get("design", ""), "", f"Priors: {card.get('priors', '')}.", ""]
+    lines += ["## Caveats", "", card.get("caveats", ""), ""]
+    lines += ["## Rebuild", "", "```", card.get("rebuild_command", ""), "```", ""]
+    if card.get("training_time_s") is not None:
+        lines += [f"Training time (render + measure + fit): {card['training_time_s']:.0f} s.", ""]
+    lines += ["## Hypothesis files", "", "| family | file | sha256 |", "|---|---|---|"]
+    lines += [f"| {h.get('family')} | {h.get('file')} | `{h.get('sha256')}` |" for h in card.get("hypotheses", [])]
+    lines += ["", "## Training set", ""]
+    lines += [f"- {k}: {_fmt(v)}" for k, v in card.get("training", {}).items()]
+    lines += ["", "## Features", "", ", ".join(f"`{f}`" for f in card.get("features", [])), ""]
+    lines += ["Typicality uses: " + ", ".join(f"`{f}`" for f in card.get("typicality_features", [])), ""]
+    lines += ["## Held-out metrics (synthetic craters not used in training; impact vs spot at p = 0.5)", "",
+              "| band | n | accuracy | Brier | ECE |", "|---|---|---|---|---|"]
+    lines += [f"| {m['band']} | {m['n']} | {_fmt(m['accuracy'])} | {_fmt(m['brier'])} | {_fmt(m['ece'])} |"
+              for m in card.get("held_out_metrics", [])]
+    bowl = card.get("fresh_bowl_check")
+    if bowl:
+        lines += ["", f"Fresh Pike-shaped bowls on held-out DEMs: {_fmt(bowl.get('share_p_impact_ge_0_5'))} "
+                      f"of {bowl.get('n')} have p_impact >= 0.5."]
+    th = card.get("thresholds", {})
+    lines += ["", "## Verdict thresholds", "", f"- typicality < {th.get('typicality')} = atypical",
+              f"- |log10_lr| < {th.get('abs_log10_lr')} = weak", f"- rule: {th.get('verdict_rule')}", ""]
+    lines += ["## Known failure modes", ""] + [f"- {f}" for f in card.get("failure_modes", [])] + [""]
+    return "\n".join(lines)
+
+
+def card_paths(model_path) -> tuple[Path, Path]:
+    """``(<name>.card.json, <name>.card.md)`` beside ``model_path``."""
+    model_path = Path(model_path)
+    stem = model_path.name[: -len(".skops")] if model_path.name.endswith(".skops") else model_path.name
+    return model_path.with_name(f"{stem}.card.json"), model_path.with_name(f"{stem}.card.md")
+
+
+def _atomic_write_text(path: Path, text: str) -> None:
+    fd, tmp = tempfile.mkstemp(prefix=path.name, suffix=".tmp", dir=path.parent)
+    with os.fdopen(fd, "w", encoding="utf-8") as fh:
+        fh.write(text)
+    os.replace(tmp, path)
+
+
+def write_card(card: dict, model_path) -> tuple[Path, Path]:
+    """Write the card beside ``model_path`` as JSON and Markdown (atomic)."""
+    json_path, md_path = card_paths(model_path)
+    _atomic_write_text(json_path, json.dumps(card, indent=2, default=str) + "\n")
+    _atomic_write_text(md_path, render_card_markdown(card))
+    return json_path, md_path
