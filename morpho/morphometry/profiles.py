@@ -11,7 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage
 
-__all__ = ["RadialProfiles", "sample_radial_profiles"]
+__all__ = ["RadialProfiles", "sample_radial_profiles", "sample_polar"]
 
 
 @dataclass(frozen=True)
@@ -98,22 +98,36 @@ def sample_radial_profiles(
         raise ValueError("radius_px must be finite and > 0")
     az = np.linspace(0.0, 2.0 * np.pi, n_azimuths, endpoint=False)
     r_norm = np.linspace(0.0, r_max_factor, n_radii)
+    vals = sample_polar(z, rows, cols, radius_px, az, r_norm, order=order)
+    return RadialProfiles(vals, r_norm, az, radius_px, rows, cols)
+
+
+def sample_polar(z, rows, cols, radius_px, azimuths, r_norm, *, order=1):
+    """Sample ``z`` at ``centre + r_norm * radius * (cos az, sin az)`` -> shape (n, n_az, n_r).
+
+    Same conventions as :func:`sample_radial_profiles` but on any (e.g. non-uniform) radii.
+    NaN where a contributing pixel is NaN or the point is off the grid.
+    """
+    z = np.asarray(z, dtype=np.float64)
     n = rows.size
     if n == 0:
-        return RadialProfiles(np.empty((0, n_azimuths, n_radii)), r_norm, az, radius_px, rows, cols)
-
+        return np.empty((0, azimuths.size, r_norm.size))
     rr = radius_px[:, None, None] * r_norm[None, None, :]
     # Row index grows downwards (south on a north-up grid): +azimuth turns east -> north.
-    sample_r = rows[:, None, None] - rr * np.sin(az)[None, :, None]
-    sample_c = cols[:, None, None] + rr * np.cos(az)[None, :, None]
+    sample_r = rows[:, None, None] - rr * np.sin(azimuths)[None, :, None]
+    sample_c = cols[:, None, None] + rr * np.cos(azimuths)[None, :, None]
 
     nan_mask = ~np.isfinite(z)
     filled = np.where(nan_mask, 0.0, z)
     coords = np.stack([sample_r.ravel(), sample_c.ravel()])
     vals = ndimage.map_coordinates(filled, coords, order=order, mode="constant", cval=np.nan)
     # Any NaN neighbour contaminates the interpolated value: flag it rather than invent data.
-    bad = ndimage.map_coordinates(nan_mask.astype(np.float32), coords, order=1, mode="constant", cval=1.0)
+    if nan_mask.any():
+        bad = ndimage.map_coordinates(nan_mask.astype(np.float32), coords, order=1,
+                                      mode="constant", cval=1.0)
+    else:  # the second interpolation pass is only needed when there is nodata to track
+        bad = np.zeros(coords.shape[1], dtype=np.float32)
     h, w = z.shape
     outside = (coords[0] < -0.5) | (coords[0] > h - 0.5) | (coords[1] < -0.5) | (coords[1] > w - 0.5)
     vals = np.where((bad > 1e-6) | outside, np.nan, vals)
-    return RadialProfiles(vals.reshape(n, n_azimuths, n_radii), r_norm, az, radius_px, rows, cols)
+    return vals.reshape(n, azimuths.size, r_norm.size)
