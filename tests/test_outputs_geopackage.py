@@ -21,7 +21,12 @@ from pandas.testing import assert_frame_equal
 from morpho import dictionary
 from morpho.errors import InputError, OutputError, OutputExistsError
 from morpho.outputs import _geopackage, read_survey, write_geopackage
-from morpho.outputs._sample import sample_chains, sample_craters, sample_population
+from morpho.outputs._sample import (
+    sample_chains,
+    sample_craters,
+    sample_envelope,
+    sample_population,
+)
 
 
 @pytest.fixture(scope="module")
@@ -32,7 +37,8 @@ def craters():
 def _write(path, craters, **kw):
     return write_geopackage(path, craters, population=sample_population(), chains=sample_chains(),
                             footprint=shapely.box(0, 0, 100_000, 100_000),
-                            run={"input_file": "brannock.tif", "seed": 7}, **kw)
+                            run={"input_file": "brannock.tif", "seed": 7}, envelope=sample_envelope(),
+                            **kw)
 
 
 def test_layers_read_back_with_geopandas_equal_what_was_written(tmp_path, craters):
@@ -43,6 +49,7 @@ def test_layers_read_back_with_geopandas_equal_what_was_written(tmp_path, crater
     assert back.crs.equals(craters.crs, ignore_axis_order=True)
     assert_geodataframe_equal(gpd.read_file(path, layer="chains"), sample_chains(), check_crs=False)
     assert_frame_equal(pd.DataFrame(gpd.read_file(path, layer="population")), sample_population())
+    assert_frame_equal(pd.DataFrame(gpd.read_file(path, layer="ripley_l")), sample_envelope())
     fp = gpd.read_file(path, layer="footprint")
     assert fp.geometry.iloc[0].equals(shapely.box(0, 0, 100_000, 100_000))
     run = gpd.read_file(path, layer="run")
@@ -52,6 +59,7 @@ def test_layers_read_back_with_geopandas_equal_what_was_written(tmp_path, crater
     survey = read_survey(path)
     assert_geodataframe_equal(survey.craters, back)
     assert_frame_equal(survey.population, sample_population())
+    assert_frame_equal(survey.envelope, sample_envelope())
     assert survey.run == {"input_file": "brannock.tif", "seed": "7"}
 
 
@@ -66,7 +74,7 @@ def test_file_follows_the_ogc_geopackage_structure(tmp_path, craters):
         n = con.execute("SELECT count(*) FROM craters").fetchone()[0]
     # Req 13/ 21: vector layers are "features", non-spatial tables "attributes"
     assert {k: contents[k] for k in _geopackage.LAYERS} == {
-        "craters": "features", "population": "attributes", "chains": "features",
+        "craters": "features", "population": "attributes", "ripley_l": "attributes", "chains": "features",
         "footprint": "features", "run": "attributes"}
     assert geom["craters"] == "POLYGON" and geom["chains"] == "LINESTRING"
     assert n == len(craters)

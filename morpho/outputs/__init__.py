@@ -8,6 +8,7 @@ target and renames it into place, and never replaces an existing file unless
 
 from __future__ import annotations
 
+from ._export import companion_paths, export_features, feature_table
 from ._geopackage import LAYERS, SurveyOutput, read_survey, write_geopackage
 from ._provenance import run_provenance, sha256_file
 
@@ -18,4 +19,7 @@ __all__ = [
     "read_survey",
     "run_provenance",
     "sha256_file",
+    "export_features",
+    "feature_table",
+    "companion_paths",
 ]

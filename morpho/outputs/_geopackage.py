@@ -1,8 +1,9 @@
 """The survey GeoPackage (OGC GeoPackage 1.x via pyogrio): write it atomically, read it back.
 
 Layers: ``craters`` (rim outline polygons), ``population`` (statistics, no
-geometry), ``chains`` (lines), ``footprint`` (valid-data polygon) and ``run``
-(key/value provenance, no geometry), plus an optional ``layer_styles`` table that
+geometry), ``ripley_l`` (Besag's L with its CSR envelope, no geometry), ``chains``
+(lines), ``footprint`` (valid-data polygon) and ``run`` (key/value provenance, no
+geometry), plus an optional ``layer_styles`` table that
 QGIS reads as the default style of ``craters``.
 """
 
@@ -23,7 +24,7 @@ from ._atomic import atomic_paths, check_targets
 __all__ = ["SurveyOutput", "write_geopackage", "read_survey", "LAYERS"]
 
 #: Layers every morpho GeoPackage holds, in writing order.
-LAYERS = ("craters", "population", "chains", "footprint", "run")
+LAYERS = ("craters", "population", "ripley_l", "chains", "footprint", "run")
 
 
 @dataclass
@@ -36,6 +37,8 @@ class SurveyOutput:
         One row per crater, rim outline polygons, columns in dictionary order.
     population : pandas.DataFrame
         Population statistics.
+    envelope : pandas.DataFrame
+        Besag's L(r) and its CSR envelope (``r_m, L_m, L_low_m, L_high_m, L_mean_m``).
     chains : geopandas.GeoDataFrame
         Crater chains as lines (possibly empty).
     footprint : geopandas.GeoDataFrame
@@ -48,6 +51,7 @@ class SurveyOutput:
 
     craters: gpd.GeoDataFrame
     population: pd.DataFrame
+    envelope: pd.DataFrame
     chains: gpd.GeoDataFrame
     footprint: gpd.GeoDataFrame
     run: dict = field(default_factory=dict)
@@ -60,7 +64,7 @@ def _write_layer(frame, path: Path, layer: str, **kwargs) -> None:
 
 
 def write_geopackage(path, craters, *, population=None, chains=None, footprint=None, run=None,
-                     overwrite: bool = False, style: bool = True) -> Path:
+                     envelope=None, overwrite: bool = False, style: bool = True) -> Path:
     """Write a survey to one GeoPackage, atomically.
 
     Every table is checked against the data dictionary before any byte is written;
@@ -85,6 +89,8 @@ def write_geopackage(path, craters, *, population=None, chains=None, footprint=N
     run : dict, optional
         Provenance (see :func:`morpho.outputs.run_provenance`); layer ``run`` with
         text columns ``key, value`` (non-text values stored as JSON).
+    envelope : pandas.DataFrame, optional
+        ``PopulationResult.envelope`` (layer ``ripley_l``; written empty when absent).
     overwrite : bool, default False
         Replace an existing file.
     style : bool, default True
@@ -110,6 +116,7 @@ def write_geopackage(path, craters, *, population=None, chains=None, footprint=N
     layers = {
         "craters": crater_layer,
         "population": _schema.conform_population(population, path=target),
+        "ripley_l": _schema.conform_envelope(envelope, path=target),
         "chains": _schema.conform_chains(chains, crs, path=target),
         "footprint": _schema.conform_footprint(footprint, crs, path=target),
         "run": _schema.run_table(run),
@@ -185,6 +192,7 @@ def read_survey(path) -> SurveyOutput:
     return SurveyOutput(
         craters=craters,
         population=population,
+        envelope=_schema.conform_envelope(read("ripley_l", spatial=False), path=path),
         chains=_schema.conform_chains(read("chains"), crs, path=path),
         footprint=_schema.conform_footprint(read("footprint"), crs, path=path),
         run=run,

@@ -16,7 +16,7 @@ import shapely
 
 from .. import dictionary
 
-__all__ = ["SAMPLE_CRS", "sample_craters", "sample_population", "sample_chains"]
+__all__ = ["SAMPLE_CRS", "sample_craters", "sample_population", "sample_chains", "sample_envelope"]
 
 #: Local stereographic projection on a lunar-radius sphere (invented scene "Brannock Plain").
 SAMPLE_CRS = "+proj=stere +lat_0=12 +lon_0=31 +R=1737400 +units=m +no_defs +type=crs"
@@ -115,3 +115,11 @@ def sample_chains(crs=SAMPLE_CRS) -> gpd.GeoDataFrame:
     return gpd.GeoDataFrame({"chain_id": np.array([1, 2], dtype=np.int64),
                              "n_craters": np.array([3, 2], dtype=np.int64)},
                             geometry=lines, crs=crs)
+
+
+def sample_envelope() -> pd.DataFrame:
+    """Besag's L(r) near CSR (L = r) with a symmetric simulation envelope."""
+    r = np.linspace(500.0, 20_000.0, 40)
+    half = 0.05 * r + 200.0
+    return pd.DataFrame({"r_m": r, "L_m": r * 1.02, "L_low_m": r - half, "L_high_m": r + half,
+                         "L_mean_m": r})

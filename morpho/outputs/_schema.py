@@ -21,6 +21,8 @@ __all__ = [
     "conform_craters",
     "conform_population",
     "conform_chains",
+    "conform_envelope",
+    "ENVELOPE_DTYPES",
     "conform_footprint",
     "run_table",
     "restore_dtypes",
@@ -35,6 +37,10 @@ _PANDAS_DTYPE = {"float64": "float64", "int64": "int64", "bool": "bool", "str": 
 POPULATION_COLUMNS = ("statistic", "value", "p_value", "n", "method", "reference")
 _POPULATION_DTYPES = {"statistic": "str", "value": "float64", "p_value": "float64", "n": "int64",
                       "method": "str", "reference": "str"}
+#: Columns of the ``ripley_l`` layer: Besag's L(r) with the CSR simulation envelope,
+#: as returned in ``PopulationResult.envelope`` (all metres).
+ENVELOPE_DTYPES = {"r_m": "float64", "L_m": "float64", "L_low_m": "float64", "L_high_m": "float64",
+                   "L_mean_m": "float64"}
 _DICT_FIX = "declare the column in morpho/dictionary/_<section>.py or drop it before writing"
 
 
@@ -124,6 +130,20 @@ def conform_population(population, *, path) -> pd.DataFrame:
                          fix=_DICT_FIX.replace("_<section>", "_population"))
     order = [c for c in declared if c in population.columns]
     return _cast(population[order], declared, path=path, table="population").reset_index(drop=True)
+
+
+def conform_envelope(envelope, *, path) -> pd.DataFrame:
+    """Ripley L envelope table (may be empty)."""
+    if envelope is None or len(envelope.columns) == 0:
+        return pd.DataFrame({c: pd.Series([], dtype=d) for c, d in ENVELOPE_DTYPES.items()})
+    missing = [c for c in ENVELOPE_DTYPES if c not in envelope.columns]
+    extra = [c for c in envelope.columns if c not in ENVELOPE_DTYPES]
+    if missing or extra:
+        raise InputError(f"the Ripley envelope needs columns {list(ENVELOPE_DTYPES)} "
+                         f"(missing {missing}, unknown {extra}).", path=path,
+                         fix="pass PopulationResult.envelope unchanged")
+    return _cast(envelope[list(ENVELOPE_DTYPES)], ENVELOPE_DTYPES, path=path,
+                 table="envelope").reset_index(drop=True)
 
 
 def conform_chains(chains, crs, *, path) -> gpd.GeoDataFrame:
