@@ -1,0 +1,85 @@
+"""Writing a synthetic surface: GeoTIFF + truth CSV + truth GeoPackage, atomically."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import OutputError, OutputExistsError
+
+__all__ = ["write_surface"]
+
+_NAME_OK = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_-.")
+
+
+def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[str, Path]:
+    """Write ``<name>.tif``, ``<name>_truth.csv`` and ``<name>_truth.gpkg`` into ``out_dir``.
+
+    The GeoTIFF is float32, deflate-compressed (predictor 3), tiled 256 x 256, NaN nodata,
+    with the surface's CRS and transform. The CSV holds the truth table; the GeoPackage
+    holds it as points (layer ``truth``) in the DEM's CRS. All three files are written to
+    a temporary folder beside the targets and renamed into place only when complete.
+
+    Returns
+    -------
+    dict
+        ``{"dem": path, "truth_csv": path, "truth_gpkg": path}``.
+
+    Raises
+    ------
+    OutputExistsError
+        A target exists and ``overwrite`` is false (nothing is written).
+    OutputError
+        The folder is missing or not writable, or ``name`` is not a plain file stem.
+    """
+    import geopandas as gpd
+    import rasterio
+
+    out = Path(out_dir).expanduser().absolute()
+    if not name or set(name) - _NAME_OK:
+        raise OutputError(f"name must be a plain file stem (letters, digits, _ - .); got {name!r}.",
+                          path=out, fix="choose a name such as moon_synth_11")
+    if not out.is_dir():
+        raise OutputError("the output folder does not exist.", path=out, fix="create it first")
+    targets = {"dem": out / f"{name}.tif", "truth_csv": out / f"{name}_truth.csv",
+               "truth_gpkg": out / f"{name}_truth.gpkg"}
+    for t in targets.values():
+        if t.exists() and not overwrite:
+            raise OutputExistsError("the output file exists; not overwriting it.", path=t,
+                                    fix="pass --overwrite (overwrite=True) or choose another name")
+    z = np.asarray(surface.z, dtype=np.float32)
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=".morpho-synth-", dir=out))
+    except OSError as err:
+        raise OutputError(f"cannot write in the output folder: {err.strerror or err}.", path=out,
+                          fix="choose a folder you can write to") from err
+    try:
+        profile = dict(driver="GTiff", width=z.shape[1], height=z.shape[0], count=1, dtype="float32",
+                       crs=rasterio.crs.CRS.from_wkt(surface.crs.to_wkt()), transform=surface.transform,
+                       nodata=np.nan, compress="deflate", predictor=3, tiled=True, blockxsize=256,
+                       blockysize=256)
+        with rasterio.open(tmp / targets["dem"].name, "w", **profile) as dst:
+            dst.write(z, 1)
+            dst.update_tags(body=surface.body, pixel_size_m=repr(surface.pixel_size_m),
+                            generator="morpho.synth", seed=str(surface.params.get("seed", "")))
+            dst.set_band_description(1, "elevation (m)")
+        truth = surface.truth
+        truth.to_csv(tmp / targets["truth_csv"].name, index=False, float_format="%.6g")
+        gdf = gpd.GeoDataFrame(truth.copy(), geometry=gpd.points_from_xy(truth["center_x"], truth["center_y"]),
+                               crs=surface.crs.to_wkt())
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            gdf.to_file(tmp / targets["truth_gpkg"].name, layer="truth", driver="GPKG")
+        for t in targets.values():
+            os.replace(tmp / t.name, t)
+    except OSError as err:
+        raise OutputError(f"cannot write the synthetic surface: {err}.", path=out,
+                          fix="check free space and permissions") from err
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+    return targets
