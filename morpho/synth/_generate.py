@@ -264,7 +264,9 @@ def generate_surface(
     visible = _visible_fraction(owner, rows, cols, radius_px, shapes)
     transform = tile_transform((H, W), px)
     crs = tile_crs(b, center_lat_deg, center_lon_deg)
-    x, y = transform * (cols + 0.5, rows + 0.5)
+    t = transform  # pixel centre: transform * (col + 0.5, row + 0.5), vectorised
+    x = t.a * (cols + 0.5) + t.b * (rows + 0.5) + t.c
+    y = t.d * (cols + 0.5) + t.e * (rows + 0.5) + t.f
     lon, lat = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True).transform(x, y)
     truncated = ((rows - radius_px < -0.5) | (rows + radius_px > H - 0.5)
                  | (cols - radius_px < -0.5) | (cols + radius_px > W - 0.5))
