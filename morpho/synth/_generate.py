@@ -185,8 +185,8 @@ def generate_surface(
     Examples
     --------
     >>> s = generate_surface("moon", shape=(256, 256), n_craters=5, seed=1)
-    >>> s.z.dtype.name, len(s.truth) > 0, s.crs.to_dict()["proj"]
-    ('float32', True, 'stere')
+    >>> s.z.dtype.name, len(s.truth) > 0, s.crs.to_json_dict()["conversion"]["method"]["name"]
+    ('float32', True, 'Stereographic')
     """
     b = body if isinstance(body, Body) else get_body(body)
     H, W = (int(v) for v in shape)
