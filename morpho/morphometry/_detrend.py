@@ -6,14 +6,23 @@ import numpy as np
 
 from ._geometry import _solve_batched, nanquantile_last
 
-__all__ = ["fit_annulus_plane", "detrend_profiles"]
+__all__ = ["fit_annulus_plane", "detrend_profiles", "plain_level", "ANNULUS"]
 
 #: Tukey biweight tuning constant (95 % efficiency at the normal; Beaton & Tukey 1974).
 _TUKEY_C = 4.685
 
 
-def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5), n_iter=4):
-    """Fit ``z = a + b u + c v`` to profile samples in an annulus, by iteratively reweighted LSQ.
+#: Annulus (crater radii) of the regional fit, and the ejecta-flank exponent modelled in it.
+ANNULUS = (1.3, 2.5)
+FLANK_EXPONENT = 3.0
+
+
+def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=4):
+    """Fit ``z = a + b u + c v + e (r/R)^-3`` to an annulus by iteratively reweighted LSQ.
+
+    The plane ``a + b u + c v`` is the surrounding plain; the ``e (r/R)^-3`` term absorbs
+    the ejecta flank (McGetchin et al. 1973 thickness law) so that the rim height is
+    measured above the plain rather than above the near-rim ejecta.
 
     Parameters
     ----------
@@ -32,12 +41,15 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5), n_ite
 
     Returns
     -------
-    ndarray, shape (n, 3)
-        ``(a, b, c)``: level at the centre and slopes per pixel along ``u = r cos(az)``,
-        ``v = r sin(az)``. NaN where fewer than 3 valid samples.
+    ndarray, shape (n, 4)
+        ``(a, b, c, e)``: plain level at the centre, slopes per pixel along
+        ``u = r cos(az)``, ``v = r sin(az)``, and the flank amplitude. NaN where the
+        system is singular.
 
     References
     ----------
+    McGetchin T.R., Settle M., Head J.W. (1973) Radial thickness variation in impact crater
+    ejecta. Earth Planet. Sci. Lett. 20:226-236.
     Holland P.W., Welsch R.E. (1977) Robust regression using iteratively reweighted
     least-squares. Commun. Stat. Theory Methods 6(9):813-827.
     """
@@ -49,20 +61,18 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5), n_ite
     rr = radius_px[:, None, None] * r_norm[sel][None, None, :]
     u = (rr * np.cos(azimuths)[None, :, None]).reshape(n, -1)
     v = (rr * np.sin(azimuths)[None, :, None]).reshape(n, -1)
+    f = np.broadcast_to(r_norm[sel][None, None, :] ** -FLANK_EXPONENT, zp[:, :, sel].shape).reshape(n, -1)
     ok = np.isfinite(z)
     zf = np.where(ok, z, 0.0)
     w = ok.astype(float)
-    coef = np.full((n, 3), np.nan)
+    basis = (np.ones_like(u), u, v, f)
+    coef = np.full((n, 4), np.nan)
     for _ in range(n_iter):
-        wu, wv = w * u, w * v
-        ata = np.stack([
-            np.stack([w.sum(1), wu.sum(1), wv.sum(1)], -1),
-            np.stack([wu.sum(1), (wu * u).sum(1), (wu * v).sum(1)], -1),
-            np.stack([wv.sum(1), (wv * u).sum(1), (wv * v).sum(1)], -1),
-        ], -2)
-        atb = np.stack([(w * zf).sum(1), (wu * zf).sum(1), (wv * zf).sum(1)], -1)
+        wb = [w * b for b in basis]
+        ata = np.stack([np.stack([(wi * bj).sum(1) for bj in basis], -1) for wi in wb], -2)
+        atb = np.stack([(wi * zf).sum(1) for wi in wb], -1)
         coef = _solve_batched(ata, atb)
-        res = zf - coef[:, :1] - coef[:, 1:2] * u - coef[:, 2:3] * v
+        res = zf - sum(coef[:, i : i + 1] * b for i, b in enumerate(basis))
         mad = nanquantile_last(np.where(ok, np.abs(res), np.nan), 0.5)
         scale = 1.4826 * np.where(np.isfinite(mad), mad, 0.0)
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -73,14 +83,14 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5), n_ite
     return coef
 
 
-def detrend_profiles(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5)):
-    """Subtract the robust annulus plane from every profile sample.
+def detrend_profiles(zp, r_norm, azimuths, radius_px, annulus=ANNULUS):
+    """Subtract the robust annulus plane (not the flank term) from every profile sample.
 
     Returns
     -------
     detrended : ndarray, shape (n, n_az, n_r)
         Elevation relative to the fitted regional plane (the "surrounding plain").
-    coef : ndarray, shape (n, 3)
+    coef : ndarray, shape (n, 4)
         Plane coefficients from :func:`fit_annulus_plane`.
     """
     coef = fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus)
@@ -89,3 +99,11 @@ def detrend_profiles(zp, r_norm, azimuths, radius_px, annulus=(1.5, 2.5)):
              + coef[:, 1, None, None] * rr * np.cos(azimuths)[None, :, None]
              + coef[:, 2, None, None] * rr * np.sin(azimuths)[None, :, None])
     return zp - plane, coef
+
+
+def plain_level(profile, r_norm, annulus=ANNULUS):
+    """Plain level ``a`` of axisymmetric profiles (..., n_r) by the same ``a + e r^-3`` model."""
+    sel = (r_norm >= annulus[0]) & (r_norm <= annulus[1])
+    basis = np.stack([np.ones(sel.sum()), r_norm[sel] ** -FLANK_EXPONENT], -1)
+    coef = np.linalg.pinv(basis) @ np.moveaxis(profile[..., sel], -1, 0).reshape(sel.sum(), -1)
+    return coef[0].reshape(profile.shape[:-1])

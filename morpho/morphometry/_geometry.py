@@ -153,10 +153,14 @@ def harmonic_amplitudes(theta, values, kmax, w=None):
     k = np.arange(kmax + 1)
     ang = theta[..., None] * k  # (..., m, k)
     with np.errstate(invalid="ignore", divide="ignore"):
+        mean = (ww * val).sum(-1) / sw
+        # Removing the mean first stops it leaking into k >= 1 when the azimuths are
+        # unevenly weighted (bootstrap resamples).
+        val = np.where(ok, val - mean[..., None], 0.0)
         c = np.einsum("...m,...mk->...k", ww * val, np.cos(ang)) / sw[..., None]
         s = np.einsum("...m,...mk->...k", ww * val, np.sin(ang)) / sw[..., None]
     amp = 2.0 * np.hypot(c, s)
-    amp[..., 0] = c[..., 0]
+    amp[..., 0] = mean
     return amp
 
 

@@ -92,11 +92,11 @@ def n_radii_for(radius_px):
 
 
 def detrended_profiles(z, rows, cols, radius_px, n_azimuths):
-    """Sample and detrend profiles of one batch of craters -> (RadialProfiles, detrended z)."""
+    """Sample and detrend one batch -> (RadialProfiles, detrended z, plane coefficients)."""
     prof = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths,
                                   n_radii=n_radii_for(radius_px), r_max_factor=R_MAX)
-    zd, _ = detrend_profiles(prof.z, prof.r_norm, prof.azimuths, prof.radius_px)
-    return prof, zd
+    zd, coef = detrend_profiles(prof.z, prof.r_norm, prof.azimuths, prof.radius_px)
+    return prof, zd, coef
 
 
 def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter=3,
@@ -141,7 +141,7 @@ def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter
     >>> import numpy as np
     >>> yy, xx = np.mgrid[0:80, 0:80]
     >>> r = np.hypot(yy - 40.0, xx - 41.0)
-    >>> z = np.where(r < 15, (r / 15) ** 2, (r / 15) ** -3)  # bowl with a rim at r = 15 px
+    >>> z = np.where(r < 15, (r / 15) ** 2, np.maximum(r / 15, 1) ** -3)  # rim at r = 15 px
     >>> out = refine_craters(z, 1.0, [38.0], [43.0], [12.0])
     >>> [round(float(out.loc[0, k])) for k in ("row", "col", "radius_px")]
     [40, 41, 15]

@@ -1,0 +1,114 @@
+"""Degradation state: topographic diffusion of a fresh profile fitted to the observed one.
+
+The model of Fassett & Thomson (2014): a fresh crater of the body's published shape
+(:func:`morpho.shapes.fresh_impact_profile`) relaxes by ``dh/dt = kappa laplacian(h)``
+(:func:`morpho.shapes.diffuse_radial_profile`). Working in units of the crater radius the
+diffused shape depends only on ``kappa t / D^2``, so one table of model profiles per
+diameter bin serves every crater and every bootstrap replicate.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..bodies import Body, get_body
+from ..shapes import diffuse_radial_profile, fresh_impact_profile
+from ._detrend import plain_level
+
+__all__ = ["fit_degradation", "degradation_columns", "KT_GRID"]
+
+#: Trial values of kappa t / D^2 (0 plus log-spaced 1e-5 .. 0.5).
+KT_GRID = np.concatenate([[0.0], np.geomspace(1e-5, 0.5, 85)])
+#: Radii (crater radii) compared between model and observation.
+FIT_RANGE = (0.0, 1.5)
+#: Relative width of the log-diameter bins sharing one model table.
+_BIN = 0.02
+
+
+def _model_table(diameter_m, body, r_norm):
+    """Diffused fresh profiles / D, shape (len(KT_GRID), len(r_norm)), levelled like the data."""
+    fine = np.linspace(0.0, 6.0, 601)  # beyond the 5 R flank taper of morpho.shapes
+    fresh = fresh_impact_profile(fine, diameter_m, body) / diameter_m
+    # In radius units kappa t / R^2 = 4 kappa t / D^2.
+    diffused = diffuse_radial_profile(fine, fresh, 4.0 * KT_GRID)
+    model = np.stack([np.interp(r_norm, fine, row) for row in diffused])
+    return model - plain_level(model, r_norm)[:, None]
+
+
+def _best_kt(misfit):
+    """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt)."""
+    k = np.argmin(np.where(np.isfinite(misfit), misfit, np.inf), axis=-1)
+    lg = np.log(np.where(KT_GRID > 0, KT_GRID, KT_GRID[1] / 3.0))
+    kc = np.clip(k, 1, KT_GRID.size - 2)
+    y0, y1, y2 = (np.take_along_axis(misfit, (kc + o)[..., None], -1)[..., 0] for o in (-1, 0, 1))
+    x0, x1, x2 = lg[kc - 1], lg[kc], lg[kc + 1]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        num = (x1 - x0) ** 2 * (y1 - y2) - (x1 - x2) ** 2 * (y1 - y0)
+        den = (x1 - x0) * (y1 - y2) - (x1 - x2) * (y1 - y0)
+        x = x1 - 0.5 * num / den
+    x = np.where(np.isfinite(x) & (den != 0), np.clip(x, x0, x2), x1)
+    best = np.where((k == 0) | (k == KT_GRID.size - 1), KT_GRID[k], np.exp(x))
+    return np.where(np.isfinite(misfit).any(-1), best, np.nan)
+
+
+def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
+    """Fit ``kappa t / D^2`` of the diffused fresh crater to observed mean profiles.
+
+    Parameters
+    ----------
+    r_norm : ndarray, shape (n_r,)
+        Radii in rim-crest radii (uniform, from 0 to >= 2.5).
+    profile_m : ndarray, shape (n, n_r) or (n, b, n_r)
+        Azimuth-averaged elevation (m) relative to the plain fitted by :func:`~morpho.morphometry._detrend.fit_annulus_plane`;
+        an optional middle axis holds bootstrap replicates of each crater.
+    diameter_m : ndarray, shape (n,)
+        Rim-crest diameters in metres (choose the fresh shape; NaN -> NaN result).
+    body : str or Body
+        Body whose fresh-crater laws give the initial profile.
+
+    Returns
+    -------
+    ndarray, shape (n,) or (n, b)
+        Best-fitting ``kappa t / D^2`` (dimensionless), least squares over 0-1.5 R; values
+        at the grid ends (0 or 0.5) mean "fresher than the model" or "beyond resolution".
+
+    References
+    ----------
+    Fassett C.I., Thomson B.J. (2014) Crater degradation on the lunar maria: topographic
+    diffusion and the rate of erosion on the Moon. JGR Planets 119:2255-2271,
+    doi:10.1002/2014JE004698.
+    """
+    b = body if isinstance(body, Body) else get_body(body)
+    prof = np.asarray(profile_m, dtype=float)
+    dia = np.asarray(diameter_m, dtype=float)
+    squeeze = prof.ndim == 2
+    if squeeze:
+        prof = prof[:, None, :]
+    out = np.full(prof.shape[:2], np.nan)
+    zone = (r_norm >= FIT_RANGE[0]) & (r_norm <= FIT_RANGE[1])
+    ok = np.isfinite(dia) & (dia > 0)
+    bins = np.full(dia.shape, -1)
+    bins[ok] = np.round(np.log(dia[ok]) / _BIN).astype(int)
+    for key in np.unique(bins[ok]):
+        sel = bins == key
+        table = _model_table(float(np.exp(key * _BIN)), b, r_norm)[:, zone]  # (k, m)
+        obs = prof[sel][..., zone] / dia[sel][:, None, None]  # (s, b, m)
+        good = np.isfinite(obs)
+        diff = np.where(good[..., None, :], obs[..., None, :] - table, 0.0)  # (s, b, k, m)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            misfit = (diff * diff).sum(-1) / good.sum(-1)[..., None]
+        misfit = np.where(good.sum(-1)[..., None] >= 5, misfit, np.nan)
+        out[sel] = _best_kt(misfit)
+    return out[:, 0] if squeeze else out
+
+
+def degradation_columns(mean_prof, r_norm, diameter_m, body, boot_prof=None):
+    """``kappa_t_over_d2`` and its bootstrap error for a batch (used by measure_craters)."""
+    kt = fit_degradation(r_norm, mean_prof, diameter_m, body)
+    err = np.full(kt.shape, np.nan)
+    if boot_prof is not None and boot_prof.shape[1] > 1:
+        kb = fit_degradation(r_norm, boot_prof, diameter_m, body)
+        with np.errstate(invalid="ignore"):
+            err = np.nanstd(np.where(np.isfinite(kb), kb, np.nan), axis=1, ddof=1) \
+                if np.isfinite(kb).sum() else err
+    return {"kappa_t_over_d2": kt, "kappa_t_over_d2_err": err}
