@@ -12,7 +12,7 @@ import numpy as np
 
 from ..errors import OutputError, OutputExistsError
 
-__all__ = ["write_surface"]
+__all__ = ["write_surface", "check_surface_targets"]
 
 _NAME_OK = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_-.")
 
@@ -41,17 +41,7 @@ def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[
     import rasterio
 
     out = Path(out_dir).expanduser().absolute()
-    if not name or set(name) - _NAME_OK:
-        raise OutputError(f"name must be a plain file stem (letters, digits, _ - .); got {name!r}.",
-                          path=out, fix="choose a name such as moon_synth_11")
-    if not out.is_dir():
-        raise OutputError("the output folder does not exist.", path=out, fix="create it first")
-    targets = {"dem": out / f"{name}.tif", "truth_csv": out / f"{name}_truth.csv",
-               "truth_gpkg": out / f"{name}_truth.gpkg"}
-    for t in targets.values():
-        if t.exists() and not overwrite:
-            raise OutputExistsError("the output file exists; not overwriting it.", path=t,
-                                    fix="pass --overwrite (overwrite=True) or choose another name")
+    targets = check_surface_targets(out, name, overwrite=overwrite)
     z = np.asarray(surface.z, dtype=np.float32)
     try:
         tmp = Path(tempfile.mkdtemp(prefix=".morpho-synth-", dir=out))
@@ -82,4 +72,21 @@ def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[
                           fix="check free space and permissions") from err
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
+    return targets
+
+
+def check_surface_targets(out_dir, name: str, *, overwrite: bool) -> dict[str, Path]:
+    """Check (before any work) that ``<name>.tif`` and its truth files can be written in ``out_dir``."""
+    out = Path(out_dir).expanduser().absolute()
+    if not name or set(name) - _NAME_OK:
+        raise OutputError(f"name must be a plain file stem (letters, digits, _ - .); got {name!r}.",
+                          path=out, fix="choose a name such as moon_synth_11")
+    if not out.is_dir():
+        raise OutputError("the output folder does not exist.", path=out, fix="create it first")
+    targets = {"dem": out / f"{name}.tif", "truth_csv": out / f"{name}_truth.csv",
+               "truth_gpkg": out / f"{name}_truth.gpkg"}
+    for t in targets.values():
+        if t.exists() and not overwrite:
+            raise OutputExistsError("the output file exists; not overwriting it.", path=t,
+                                    fix="pass --overwrite (overwrite=True) or choose another name")
     return targets

@@ -85,30 +85,42 @@ def _fit_plane(win, dx, dy, mask):
 def measure_stamped(z, rows, cols, radius_px, *, n_azimuths: int = 64):
     """Measure craters on the noise-free stamped (and blurred) DEM.
 
-    Per azimuth the rim crest is the highest sample in 0.7-1.3 R; the rim elevation and
-    radius are medians over azimuths; the floor is the lowest sample inside 0.8 R.
+    The regional slope is removed first (a plane fitted to the ring 1.5-2 R, so a crater on
+    an older crater's wall is measured against its own surroundings). Per azimuth the rim
+    crest is the highest sample in 0.7-1.3 R; the rim elevation and radius are medians
+    over azimuths; the floor is the lowest sample inside 0.8 R.
 
     Returns
     -------
     dict of arrays: ``rim_elev``, ``rim_radius_px``, ``floor_elev``, ``valid_fraction``.
     """
-    p = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths, n_radii=131,
-                               r_max_factor=1.3)
+    p = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths, n_radii=201,
+                               r_max_factor=2.0)
     rn = p.r_norm
-    band = (rn >= 0.7) & (rn <= 1.3)
-    zb = p.z[:, :, band]
-    valid_az = np.isfinite(zb).all(axis=2)
-    zb_f = np.where(np.isfinite(zb), zb, -np.inf)
-    k = np.argmax(zb_f, axis=2)
-    crest = np.take_along_axis(zb_f, k[..., None], axis=2)[..., 0]
-    crest_r = rn[band][k]
-    crest = np.where(valid_az, crest, np.nan)
-    crest_r = np.where(valid_az, crest_r, np.nan)
+    ex = np.cos(p.azimuths)[:, None] * rn[None, :]
+    ey = np.sin(p.azimuths)[:, None] * rn[None, :]
+    ring = (rn >= 1.5) & (rn <= 2.0)
     with warnings.catch_warnings():  # all-NaN rows (craters off the grid) give NaN, flagged later
         warnings.simplefilter("ignore", RuntimeWarning)
+        zr = p.z[:, :, ring]
+        zr = zr - np.nanmean(zr, axis=(1, 2), keepdims=True)
+        w = np.isfinite(zr)
+        zr0 = np.where(w, zr, 0.0)
+        gx = (zr0 * ex[:, ring]).sum(axis=(1, 2)) / np.maximum((w * ex[:, ring] ** 2).sum(axis=(1, 2)), 1e-12)
+        gy = (zr0 * ey[:, ring]).sum(axis=(1, 2)) / np.maximum((w * ey[:, ring] ** 2).sum(axis=(1, 2)), 1e-12)
+        zd = p.z - gx[:, None, None] * ex[None] - gy[:, None, None] * ey[None]
+        band = (rn >= 0.7) & (rn <= 1.3)
+        zb = zd[:, :, band]
+        valid_az = np.isfinite(zb).all(axis=2)
+        zb_f = np.where(np.isfinite(zb), zb, -np.inf)
+        k = np.argmax(zb_f, axis=2)
+        crest = np.take_along_axis(zb_f, k[..., None], axis=2)[..., 0]
+        crest_r = rn[band][k]
+        crest = np.where(valid_az, crest, np.nan)
+        crest_r = np.where(valid_az, crest_r, np.nan)
         rim_elev = np.nanmedian(crest, axis=1)
         rim_r = np.nanmedian(crest_r, axis=1) * radius_px
-        inner = p.z[:, :, rn <= 0.8]
+        inner = zd[:, :, rn <= 0.8]
         floor = np.nanmin(inner.reshape(inner.shape[0], -1), axis=1)
     return {"rim_elev": rim_elev, "rim_radius_px": rim_r, "floor_elev": floor,
             "valid_fraction": valid_az.mean(axis=1)}
