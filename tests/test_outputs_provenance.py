@@ -88,3 +88,10 @@ def test_caveats_state_the_limits():
                    "untested assumption", "no published depth/diameter ratio", "consensus"):
         assert phrase in text, phrase
     assert "\n" not in CAVEATS_SHORT and "consensus" in CAVEATS_SHORT
+
+
+def test_iso_text_times_are_normalised_to_utc(dem):
+    run = run_provenance(dem, start_time="2026-03-01T12:00:00+00:00", end_time="2026-03-01T14:00:00+02:00")
+    assert (run["start_time_utc"], run["end_time_utc"]) == ("2026-03-01T12:00:00Z", "2026-03-01T12:00:00Z")
+    with pytest.raises(InputError, match="ISO 8601"):
+        run_provenance(dem, start_time="yesterday")

@@ -11,6 +11,7 @@ from __future__ import annotations
 from ._export import companion_paths, export_features, feature_table
 from ._geopackage import LAYERS, SurveyOutput, read_survey, write_geopackage
 from ._provenance import run_provenance, sha256_file
+from ._report import build_report, render_preview_png
 
 __all__ = [
     "LAYERS",
@@ -22,4 +23,6 @@ __all__ = [
     "export_features",
     "feature_table",
     "companion_paths",
+    "build_report",
+    "render_preview_png",
 ]

@@ -68,7 +68,11 @@ def dependency_versions() -> dict[str, str]:
 def utc_iso(when=None) -> str:
     """ISO 8601 UTC timestamp (``2026-01-31T12:00:00Z``); ``when`` a datetime, str or None (now)."""
     if isinstance(when, str):
-        return when
+        try:
+            when = datetime.fromisoformat(when.replace("Z", "+00:00"))
+        except ValueError as err:
+            raise InputError(f"timestamp {when!r} is not ISO 8601.",
+                             fix="pass a datetime or an ISO 8601 text") from err
     when = datetime.now(UTC) if when is None else when
     if when.tzinfo is None:
         raise InputError(f"timestamp {when!r} has no time zone.",
