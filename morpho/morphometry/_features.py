@@ -134,6 +134,33 @@ def _loglog_slope(x, y, mask):
     return np.where(n >= 3, slope, np.nan)
 
 
+def _floor_level(m, r_norm, interior, floor_min, depth_min):
+    """Floor elevation from an area-weighted fit ``z = a + b r^2`` to the lowest 10 % of relief.
+
+    The lowest sample alone is one or two noisy pixels near the centre. The fit uses every
+    interior sample within 10 % of the depth above that minimum (a disc for a bowl, a ring
+    around a central peak) and returns the fitted curve's lowest value on those radii:
+    exact for a paraboloid and for a flat floor (derived).
+    """
+    with np.errstate(invalid="ignore", divide="ignore"):
+        level = (m - floor_min[..., None]) / depth_min[..., None]
+    sel = interior & np.isfinite(m) & (level <= 0.1)
+    x = r_norm**2
+    w = np.where(sel, np.maximum(r_norm, 0.5 * (r_norm[1] - r_norm[0])), 0.0)
+    y = np.where(sel, m, 0.0)
+    s0, s1, s2 = w.sum(-1), (w * x).sum(-1), (w * x * x).sum(-1)
+    sy, sxy = (w * y).sum(-1), (w * x * y).sum(-1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        det = s0 * s2 - s1 * s1
+        b = (s0 * sxy - s1 * sy) / det
+        a = (sy - b * s1) / s0
+        x_lo = np.where(sel, x, np.inf).min(-1)
+        x_hi = np.where(sel, x, -np.inf).max(-1)
+        fitted = a + b * np.where(b > 0, x_lo, x_hi)
+    ok = (sel.sum(-1) >= 3) & np.isfinite(fitted) & (np.abs(det) > 0)
+    return np.where(ok, fitted, floor_min)
+
+
 def profile_features(m, r_norm, radius_m, rim_z):
     """Features of the azimuth-averaged detrended profile.
 
@@ -165,10 +192,11 @@ def profile_features(m, r_norm, radius_m, rim_z):
     interior = r_norm <= 0.9
     i_crest = np.full(m.shape[:-1], int(np.searchsorted(r_norm, 1.0)))
     with np.errstate(invalid="ignore", divide="ignore"):
-        m_in = np.where(interior, m, np.inf)
+        m_in = np.where(interior & np.isfinite(m), m, np.inf)
         i_floor = np.argmin(m_in, axis=-1)
-        floor_z = np.take_along_axis(m, i_floor[..., None], -1)[..., 0]
-        floor_z = np.where(np.isfinite(m_in).any(-1), floor_z, np.nan)
+        floor_min = np.take_along_axis(m, i_floor[..., None], -1)[..., 0]
+        floor_min = np.where(np.isfinite(m_in).any(-1), floor_min, np.nan)
+        floor_z = _floor_level(m, r_norm, interior, floor_min, rim_z - floor_min)
         depth = rim_z - floor_z
         level = (m - floor_z[..., None]) / depth[..., None]
         r10, r60, r90, r_fl = (_crossing(level, q, i_crest) * dr for q in (0.1, 0.6, 0.9, FLOOR_LEVEL))
@@ -191,13 +219,18 @@ def profile_features(m, r_norm, radius_m, rim_z):
         beyond = (pos >= i_peak[..., None]) & (peak_level <= 0.1)
         first = np.argmax(beyond, axis=-1)
         has_base = beyond.any(-1)
-        base_r = np.where(has_base, first * dr, np.nan)
+        prev = np.clip(first - 1, 0, None)
+        l0 = np.take_along_axis(peak_level, prev[..., None], -1)[..., 0]
+        l1 = np.take_along_axis(peak_level, first[..., None], -1)[..., 0]
+        frac = np.clip((l0 - 0.1) / (l0 - l1), 0.0, 1.0)
+        base_r = np.where(has_base, (prev + np.where(np.isfinite(frac), frac, 1.0)) * dr, np.nan)
         peak_present = peak_h > FEATURE_THRESHOLD * depth
         basal_width = np.where(peak_present, 2.0 * base_r * radius_m, 0.0)
 
         # Central pit: the centre lower than the highest point of the inner floor/peak.
         centre = r_norm <= max(0.05, dr)
-        m_centre = np.nanmean(np.where(centre, m, np.nan), axis=-1)
+        ok_c = centre & np.isfinite(m)
+        m_centre = np.where(ok_c, m, 0.0).sum(-1) / ok_c.sum(-1)
         ring = (r_norm <= np.minimum(0.3, np.maximum(r_fl, dr))[..., None])
         ring_max = np.where(ring & np.isfinite(m), m, -np.inf).max(-1)
         pit = np.maximum(ring_max - m_centre, 0.0)

@@ -199,7 +199,7 @@ def measure_crater(z, spacing_m, center_rc, radius_px, *, transform=None, **kwar
 
             raise InputError(f"transform must be north-up with square pixels; got {transform!r}.",
                              fix="warp the DEM to a square metric grid first (morpho.ingest).")
-        col, row = ~transform * (center_rc[0], center_rc[1])
+        col, row = ~transform @ (center_rc[0], center_rc[1])
         center_rc = (row - 0.5, col - 0.5)  # pixel centres sit at integer indices
         spacing_m = abs(a) if spacing_m is None else spacing_m
         radius_px = radius_px / abs(a)
