@@ -26,17 +26,25 @@ _BIN = 0.02
 
 
 def _model_table(diameter_m, body, r_norm):
-    """Diffused fresh profiles / D, shape (len(KT_GRID), len(r_norm)), levelled like the data."""
-    fine = np.linspace(0.0, 6.0, 601)  # beyond the 5 R flank taper of morpho.shapes
+    """Model profiles for every trial ``kappa t / D0^2`` in the units of the measurement.
+
+    Diffusion rounds the rim and moves its crest outwards, and the measurement normalises
+    radii by the crest it finds. So each diffused profile is rescaled to its own crest
+    radius ``c`` (radii ``r_norm * c``, heights / ``c``), then levelled on the annulus like
+    the data. Returns ``(table, c)`` with shapes (k, n_r) and (k,).
+    """
+    fine = np.linspace(0.0, 6.0, 1201)  # beyond the 5 R flank taper of morpho.shapes
     fresh = fresh_impact_profile(fine, diameter_m, body) / diameter_m
     # In radius units kappa t / R^2 = 4 kappa t / D^2.
     diffused = diffuse_radial_profile(fine, fresh, 4.0 * KT_GRID)
-    model = np.stack([np.interp(r_norm, fine, row) for row in diffused])
-    return model - plain_level(model, r_norm)[:, None]
+    win = (fine >= 0.6) & (fine <= 2.0)
+    crest = fine[win][np.argmax(diffused[:, win], axis=1)]
+    model = np.stack([np.interp(r_norm * c, fine, row) / c for row, c in zip(diffused, crest, strict=True)])
+    return model - plain_level(model, r_norm)[:, None], crest
 
 
-def _best_kt(misfit):
-    """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt)."""
+def _best_kt(misfit, crest):
+    """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt), per measured D^2."""
     k = np.argmin(np.where(np.isfinite(misfit), misfit, np.inf), axis=-1)
     lg = np.log(np.where(KT_GRID > 0, KT_GRID, KT_GRID[1] / 3.0))
     kc = np.clip(k, 1, KT_GRID.size - 2)
@@ -48,7 +56,9 @@ def _best_kt(misfit):
         x = x1 - 0.5 * num / den
     x = np.where(np.isfinite(x) & (den != 0), np.clip(x, x0, x2), x1)
     best = np.where((k == 0) | (k == KT_GRID.size - 1), KT_GRID[k], np.exp(x))
-    return np.where(np.isfinite(misfit).any(-1), best, np.nan)
+    # kappa t is one number; per measured (crest) diameter D = c * D0 the ratio is / c^2.
+    c = np.interp(np.log(np.maximum(best, KT_GRID[1] / 3.0)), lg, crest)
+    return np.where(np.isfinite(misfit).any(-1), best / (c * c), np.nan)
 
 
 def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
@@ -69,8 +79,9 @@ def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
     Returns
     -------
     ndarray, shape (n,) or (n, b)
-        Best-fitting ``kappa t / D^2`` (dimensionless), least squares over 0-1.5 R; values
-        at the grid ends (0 or 0.5) mean "fresher than the model" or "beyond resolution".
+        Best-fitting ``kappa t / D^2`` (dimensionless) with ``D`` the measured (present)
+        rim-crest diameter, so ``kappa t = value * D**2``; least squares over 0-1.5 R.
+        Values at the grid ends mean "fresher than the model" or "beyond resolution".
 
     References
     ----------
@@ -91,14 +102,15 @@ def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
     bins[ok] = np.round(np.log(dia[ok]) / _BIN).astype(int)
     for key in np.unique(bins[ok]):
         sel = bins == key
-        table = _model_table(float(np.exp(key * _BIN)), b, r_norm)[:, zone]  # (k, m)
+        table, crest = _model_table(float(np.exp(key * _BIN)), b, r_norm)
+        table = table[:, zone]  # (k, m)
         obs = prof[sel][..., zone] / dia[sel][:, None, None]  # (s, b, m)
         good = np.isfinite(obs)
         diff = np.where(good[..., None, :], obs[..., None, :] - table, 0.0)  # (s, b, k, m)
         with np.errstate(invalid="ignore", divide="ignore"):
             misfit = (diff * diff).sum(-1) / good.sum(-1)[..., None]
         misfit = np.where(good.sum(-1)[..., None] >= 5, misfit, np.nan)
-        out[sel] = _best_kt(misfit)
+        out[sel] = _best_kt(misfit, crest)
     return out[:, 0] if squeeze else out
 
 

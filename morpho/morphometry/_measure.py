@@ -83,8 +83,10 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     if body is not None:
         deg = degradation_columns(mean_prof, r_norm, out["diameter_m"].to_numpy(), body,
                                   boot_prof=boot_prof)
-        for name, val in deg.items():
-            out[name] = val
+    else:  # keep the schema stable; the fit needs the body's fresh-crater shape
+        deg = {"kappa_t_over_d2": np.nan, "kappa_t_over_d2_err": np.nan}
+    for name, val in deg.items():
+        out[name] = val
     return out
 
 
@@ -161,8 +163,9 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         part.index = idx
         parts.append(part)
     out = pd.concat(parts).sort_index()
-    st = np.where(out["rim_coverage"] < MIN_COVERAGE, "low_rim_coverage", status)
-    st = np.where(out["rim_coverage"] == 0, "no_valid_data", st)
+    cov = out["rim_coverage"].to_numpy()
+    st = np.where((status == "ok") & (cov < MIN_COVERAGE),
+                  np.where(cov == 0, "no_rim_crest", "low_rim_coverage"), status)
     st = np.where((st == "ok") & ~(out["depth_m"] > 0), "no_depression", st)
     st = np.where((st == "ok") & (out["pixels_per_diameter"] < MIN_PIXELS), "too_small", st)
     out["measure_status"] = st.astype(object)

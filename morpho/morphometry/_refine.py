@@ -130,7 +130,7 @@ def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter
     pandas.DataFrame
         Columns ``row, col, radius_px`` (refined), ``rim_coverage`` (share of azimuths with
         a crest on valid data, last pass), ``ok`` (bool) and ``reason`` ("ok",
-        "no_valid_data", "low_rim_coverage", "fit_diverged").
+        "no_valid_data", "no_rim_crest", "low_rim_coverage", "fit_diverged").
 
     References
     ----------
@@ -164,6 +164,7 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
     n = rows.size
     diverged = np.zeros(n, dtype=bool)
     coverage = np.zeros(n)
+    has_data = np.zeros(n, dtype=bool)
     az = np.linspace(0.0, 2.0 * np.pi, n_azimuths, endpoint=False)
     # Only the crest window (uniform) and a few rings of the plane annulus are needed here.
     # ~0.25 px steps across the window: a coarse grid biases the parabolic peak of an
@@ -178,6 +179,7 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
         zd, _ = detrend_profiles(zp, grid, az, rad)
         crest = find_crest(zd, grid, window)
         coverage = np.isfinite(crest.r_norm).mean(axis=1)
+        has_data = np.isfinite(zp).any(axis=(1, 2))
         x, y = _crest_points(crest, az, rad)
         xc, yc, rf = fit_circle(x, y)
         good = (np.isfinite(rf) & (coverage >= MIN_COVERAGE) & ~diverged
@@ -186,7 +188,7 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
         rows = np.where(good, rows - yc, rows)
         cols = np.where(good, cols + xc, cols)
         rad = np.where(good, rf, rad)
-    reason = np.where(coverage == 0, "no_valid_data",
+    reason = np.where(coverage == 0, np.where(has_data, "no_rim_crest", "no_valid_data"),
                       np.where(coverage < MIN_COVERAGE, "low_rim_coverage",
                                np.where(diverged, "fit_diverged", "ok")))
     return pd.DataFrame({"row": rows, "col": cols, "radius_px": rad, "rim_coverage": coverage,
