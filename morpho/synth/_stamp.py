@@ -94,7 +94,7 @@ def measure_stamped(z, rows, cols, radius_px, *, n_azimuths: int = 64):
     -------
     dict of arrays: ``rim_elev``, ``rim_radius_px``, ``floor_elev``, ``valid_fraction``.
     """
-    p = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths, n_radii=201,
+    p = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths, n_radii=101,
                                r_max_factor=2.0)
     rn = p.r_norm
     ex = np.cos(p.azimuths)[:, None] * rn[None, :]
