@@ -53,8 +53,8 @@ def test_reference_finds_the_three_craters(reference):
     for r0, c0, d in CRATERS:
         row = _match(reference, r0, c0, d)
         assert row["diameter_m"] == pytest.approx(d, rel=0.05)
-        # Pike 1977 simple crater: rim-crest-to-floor depth = (0.196 + 0.036) D for this analytic bowl
-        assert row["depth_m"] == pytest.approx(0.232 * d, rel=0.10)
+        # Pike 1977 simple crater: rim-crest-to-floor depth d = 0.196 D, built into the analytic bowl
+        assert row["depth_m"] == pytest.approx(0.196 * d, rel=0.10)
 
 
 @pytest.mark.parametrize("dtype,scale,offset", [("int16", 0.5, -1000.0), ("uint16", 0.25, -2000.0)])

@@ -56,8 +56,8 @@ def test_three_km_crater_in_degrees_measures_three_km(tmp_path, lat0):
     best = craters.iloc[np.argmin(np.hypot(craters["lon"] - 20.0, craters["lat"] - lat0))]
     assert best["diameter_m"] == pytest.approx(3000.0, rel=0.05)
     assert best["lat"] == pytest.approx(lat0, abs=0.01)
-    # depth: Pike 1977 d = 0.196 D (+ rim h = 0.036 D) -> rim-crest-to-floor 0.232 D for this analytic bowl
-    assert best["depth_m"] == pytest.approx(0.232 * 3000.0, rel=0.10)
+    # depth: Pike 1977 rim-crest-to-floor depth d = 0.196 D, built into the analytic bowl
+    assert best["depth_m"] == pytest.approx(0.196 * 3000.0, rel=0.10)
 
 
 def test_measure_refines_user_list_in_degrees(tmp_path):
