@@ -108,8 +108,8 @@ def prepare_surface(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return detr, valid
 
 
-def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray) -> np.ndarray:
-    """Scale-normalised radial-symmetry response, shape (len(radii), H, W)."""
+def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
+    """Scale-normalised radial-symmetry response, shape (len(radii), H, W), and the smoothed level."""
     sm = ndimage.gaussian_filter(level, 1.0)
     gy, gx = np.gradient(sm)
     mag = np.hypot(gx, gy)
@@ -140,7 +140,20 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray) -> 
         out[j] = np.where(cov > 0.35, resp, 0.0)
         prev, s_prev = nxt, s2
         # sig[j+1] == s2 by construction, so ``prev`` is already G(sig[j+1]) * div.
-    return out
+    return out, sm
+
+
+def _ring_relief(sm, valid, rr, cc, radius):
+    """Mean elevation on a circle of ``radius`` minus the centre value, at candidate pixels."""
+    ang = np.linspace(0.0, 2.0 * np.pi, 12, endpoint=False)
+    h, w = sm.shape
+    pr = np.rint(rr[:, None] + radius[:, None] * np.sin(ang)[None, :]).astype(np.intp)
+    pc = np.rint(cc[:, None] + radius[:, None] * np.cos(ang)[None, :]).astype(np.intp)
+    inside = (pr >= 0) & (pr < h) & (pc >= 0) & (pc < w)
+    pr, pc = np.clip(pr, 0, h - 1), np.clip(pc, 0, w - 1)
+    ok = inside & valid[pr, pc]
+    ring = np.where(ok, sm[pr, pc], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
+    return np.where(ok.sum(axis=1) >= 4, ring - sm[rr, cc], 0.0)
 
 
 def find_candidates(
@@ -149,7 +162,8 @@ def find_candidates(
     *,
     min_radius_px: float,
     max_radius_px: float,
-    threshold: float = 0.15,
+    threshold: float = 0.2,
+    min_slope: float = 0.0,
 ) -> Candidates:
     """Scale-space maxima of the radial-symmetry response over a Gaussian pyramid.
 
@@ -163,6 +177,9 @@ def find_candidates(
         Radius range searched, full-resolution pixels.
     threshold : float
         Minimum response (1 = ideal radial field).
+    min_slope : float
+        Minimum (rim ring - centre) elevation difference per unit diameter, in elevation units
+        per pixel: a cheap depth/diameter screen (depth/diameter x pixel size in metres).
 
     Returns
     -------
@@ -181,11 +198,13 @@ def find_candidates(
             j0 = int(np.floor(_STEPS * np.log2(max(lo_full, 1.0) / (_R_LEVEL * factor))))
             j = np.arange(j0, _STEPS)
             radii = _R_LEVEL * _K**j  # level pixels
-            resp = _level_response(level, vmask, radii)
+            resp, sm = _level_response(level, vmask, radii)
             peak = ndimage.maximum_filter(resp, size=(3, 3, 3), mode="nearest")
             jj, rr, cc = np.nonzero((resp == peak) & (resp > threshold))
             rad_full = radii[jj] * factor * _RADIUS_CAL
             keep = (rad_full >= min_radius_px / 1.3) & (rad_full <= max_radius_px * 1.3)
+            relief = _ring_relief(sm, vmask, rr, cc, radii[jj] * _RADIUS_CAL)
+            keep &= relief >= min_slope * 2.0 * rad_full
             rows.append(rr[keep] * factor)
             cols.append(cc[keep] * factor)
             rads.append(rad_full[keep])
