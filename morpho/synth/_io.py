@@ -6,6 +6,7 @@ import os
 import shutil
 import tempfile
 import warnings
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -62,7 +63,7 @@ def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[
         truth.to_csv(tmp / targets["truth_csv"].name, index=False, float_format="%.6g")
         gdf = gpd.GeoDataFrame(truth.copy(), geometry=gpd.points_from_xy(truth["center_x"], truth["center_y"]),
                                crs=surface.crs.to_wkt())
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), _fixed_gpkg_timestamp():
             warnings.simplefilter("ignore", RuntimeWarning)
             gdf.to_file(tmp / targets["truth_gpkg"].name, layer="truth", driver="GPKG")
         for t in targets.values():
@@ -73,6 +74,19 @@ def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
     return targets
+
+
+@contextmanager
+def _fixed_gpkg_timestamp():
+    """GeoPackage timestamps fixed (GDAL's OGR_CURRENT_DATE) so same seed = same bytes."""
+    import pyogrio
+
+    old = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": "2000-01-01T00:00:00.000Z"})
+    try:
+        yield
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": old})
 
 
 def check_surface_targets(out_dir, name: str, *, overwrite: bool) -> dict[str, Path]:
