@@ -306,3 +306,43 @@ def test_render_crater_patches(family):
     if family == "impact":
         assert truth["complex"].any() and (~truth["complex"]).any()
         assert truth["degradation"].max() > 0.05
+
+
+# ------------------------------------------------------------------ command line
+
+
+def test_cli_synth_writes_dem_and_truth(tmp_path):
+    from click.testing import CliRunner
+
+    from morpho.cli.main import cli
+
+    runner = CliRunner()
+    res = runner.invoke(cli, ["-q", "synth", "-o", str(tmp_path / "out"), "--body", "moon", "--seed", "11",
+                              "--size", "128", "--craters", "6"])
+    assert res.exit_code == 0, res.output
+    assert (tmp_path / "out" / "moon_synth_11.tif").is_file()
+    assert (tmp_path / "out" / "moon_synth_11_truth.csv").is_file()
+    again = runner.invoke(cli, ["-q", "synth", "-o", str(tmp_path / "out"), "--seed", "11", "--size", "128"])
+    assert again.exit_code != 0 and "exists" in again.output
+    bad = runner.invoke(cli, ["-q", "synth", "-o", str(tmp_path), "--families", "lightning=1", "--size", "64"])
+    assert bad.exit_code == 2 and "unknown crater family" in bad.output
+
+
+def test_cli_synth_reports_a_broken_user_hypothesis_by_key(tmp_path):
+    import shutil
+
+    from click.testing import CliRunner
+
+    from morpho.cli.main import cli
+    from morpho.hypotheses import default_hypothesis_dir
+
+    hyp = tmp_path / "hyp"
+    hyp.mkdir()
+    for f in default_hypothesis_dir().glob("*.toml"):
+        shutil.copy(f, hyp / f.name)
+    p = hyp / "anode_spot.toml"
+    p.write_text(p.read_text().replace("floor_fraction = { min = 0.3, max = 0.6,",
+                                       "floor_fraction = { min = 0.7, max = 0.6,"))
+    res = CliRunner().invoke(cli, ["-q", "synth", "-o", str(tmp_path), "--hypotheses", str(hyp), "--size", "64"])
+    assert res.exit_code == 2
+    assert "[profile.floor_fraction]" in res.output and "min (0.7) > max (0.6)" in res.output
