@@ -1,7 +1,7 @@
 """Near-collinear crater triplets and chains.
 
 A triplet (i, j, k) is aligned when j lies between i and k, each of i and k is linked
-to j, and j's centre is within half a strip width of the line through i and k. Link
+to j (near and of similar size), and j's centre is within half a strip width of the line through i and k. Link
 length and strip width scale with crater size, so a chain of touching small craters
 and a chain of large craters are judged alike. The expected number under chance comes
 from Monte Carlo CSR in the survey mask with the observed diameters, the approach of
@@ -17,15 +17,19 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-__all__ = ["aligned_triplets", "extract_chains", "LINK_FACTOR", "WIDTH_FACTOR", "MIN_CHAIN"]
+__all__ = ["aligned_triplets", "extract_chains", "longest_chain", "LINK_FACTOR", "WIDTH_FACTOR", "MIN_CHAIN"]
 
 ALIGNMENT_REFERENCE = ("Broadbent 1980, JRSS A 143:109 (chance alignments by simulation); "
                        "Kendall & Kendall 1980, Adv. Appl. Prob. 12:380")
 
 #: Craters i, j are linked when their centres are closer than LINK_FACTOR times their
-#: mean diameter (crater chains are spaced about 1-2 diameters; common practice) or
+#: mean diameter (crater chains are spaced about 1-3 diameters; common practice) or
 #: than the CSR nearest-neighbour distance, whichever is larger.
-LINK_FACTOR = 3.0
+LINK_FACTOR = 5.0
+#: Linked craters differ in diameter by at most this factor: chains are strings of
+#: similar craters (common practice), and a large crater next to small ones would
+#: otherwise dominate the chance count through its long links.
+SIZE_RATIO = 2.0
 #: Full strip width in units of the triplet's mean diameter: the middle crater's centre
 #: must lie within a quarter diameter of the line through the outer two, so the line
 #: crosses the middle crater well inside its rim.
@@ -42,8 +46,9 @@ def _neighbour_edges(xy, diameter_m, min_link_m):
     centre = np.repeat(np.arange(len(xy)), counts)
     other = np.concatenate([np.asarray(h, dtype=np.int64) for h in hits]) if counts.sum() else centre
     dist = np.hypot(*(xy[other] - xy[centre]).T)
-    keep = (other != centre) & (dist <= np.maximum(LINK_FACTOR * 0.5 * (diameter_m[centre] + diameter_m[other]),
-                                                   min_link_m))
+    d_c, d_o = diameter_m[centre], diameter_m[other]
+    keep = ((other != centre) & (dist <= np.maximum(LINK_FACTOR * 0.5 * (d_c + d_o), min_link_m))
+            & (np.maximum(d_c, d_o) <= SIZE_RATIO * np.minimum(d_c, d_o)))
     # a link may be found from one end only (the larger crater reaches further): add
     # both directions, then drop the copies found from both ends
     c, o = centre[keep], other[keep]
@@ -107,6 +112,28 @@ def aligned_triplets(x_m, y_m, diameter_m, *, min_link_m: float = 0.0) -> np.nda
     return tri.astype(np.int64)
 
 
+def _triplet_components(tri):
+    """Component label per triplet; triplets sharing a pair of craters continue each other."""
+    m = len(tri)
+    pair_keys = np.sort(np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [0, 2]]]), axis=1)
+    owner = np.tile(np.arange(m), 3)
+    _, pair_idx = np.unique(pair_keys, axis=0, return_inverse=True)
+    pair_idx = pair_idx.ravel()
+    size = m + pair_idx.max() + 1
+    graph = coo_matrix((np.ones(owner.size), (owner, pair_idx + m)), shape=(size, size))
+    return connected_components(graph, directed=False)[1][:m]
+
+
+def longest_chain(triplets) -> int:
+    """Craters in the largest group of aligned triplets joined by shared pairs (0 if none)."""
+    tri = np.asarray(triplets, dtype=np.int64).reshape(-1, 3)
+    if len(tri) == 0:
+        return 0
+    comp = _triplet_components(tri)
+    members = np.unique(np.column_stack([np.repeat(comp, 3), tri.ravel()]), axis=0)
+    return int(np.bincount(members[:, 0]).max())
+
+
 def extract_chains(x_m, y_m, triplets, *, min_craters: int = MIN_CHAIN):
     """Join aligned triplets that share two craters into chains.
 
@@ -134,18 +161,8 @@ def extract_chains(x_m, y_m, triplets, *, min_craters: int = MIN_CHAIN):
     tri = np.asarray(triplets, dtype=np.int64).reshape(-1, 3)
     if len(tri) == 0:
         return chain_id, []
-    m = len(tri)
-    # triplets sharing a pair of craters continue each other along the line
-    pair_keys = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [0, 2]]])
-    pair_keys = np.sort(pair_keys, axis=1)
-    owner = np.tile(np.arange(m), 3)
-    _, pair_idx = np.unique(pair_keys, axis=0, return_inverse=True)
-    graph = coo_matrix((np.ones(owner.size), (owner, pair_idx.ravel() + m)), shape=(m + pair_idx.max() + 1,) * 2)
-    _, comp = connected_components(graph, directed=False)
-    comp = comp[:m]
-    members = {}
-    for c in np.unique(comp):
-        members[c] = np.unique(tri[comp == c])
+    comp = _triplet_components(tri)
+    members = {c: np.unique(tri[comp == c]) for c in np.unique(comp)}
     chains = []
     for idx in sorted(members.values(), key=len, reverse=True):
         free = idx[chain_id[idx] < 0]

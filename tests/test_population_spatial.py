@@ -1,0 +1,136 @@
+"""Spatial randomness: Clark-Evans with Donnelly's correction, Ripley's K/L, CSR in a mask, clusters."""
+
+import numpy as np
+import pytest
+import shapely
+from scipy import stats
+from scipy.spatial import cKDTree
+
+from morpho.errors import InputError
+from morpho.population.clusters import dbscan_clusters
+from morpho.population.csr import simulate_csr
+from morpho.population.nearest_neighbour import (
+    clark_evans,
+    csr_mean_nn_distance,
+    donnelly_expectation,
+)
+from morpho.population.ripley import besag_l, default_radii, pair_correlation, ripley_k
+from morpho.population.statistics import population_statistics
+
+UNIT = shapely.box(0, 0, 1, 1)
+
+
+def thomas_process(rng, n_parents, mean_children, sigma, side=1.0):
+    """Thomas cluster process in [0, side]^2: Gaussian offspring around Poisson parents."""
+    px, py = rng.uniform(0, side, (2, n_parents))
+    k = rng.poisson(mean_children, n_parents)
+    x = np.repeat(px, k) + rng.normal(0, sigma, k.sum())
+    y = np.repeat(py, k) + rng.normal(0, sigma, k.sum())
+    inside = (x > 0) & (x < side) & (y > 0) & (y < side)
+    return x[inside], y[inside]
+
+
+def test_donnelly_expectation_unit_square_n100():
+    # reference sheet s. 5 (derived from Donnelly 1978, coefficients from memory):
+    # n = 100 in the unit square -> E = 0.05222, Var = 8.51e-6
+    mean, var = donnelly_expectation(100, 1.0, 4.0)
+    assert mean == pytest.approx(0.05222, abs=5e-6)
+    assert var == pytest.approx(8.51e-6, rel=2e-3)
+
+
+def test_clark_evans_under_csr_rejects_at_nominal_rate_and_matches_donnelly():
+    # Clark & Evans 1954 (Ecology 35:445) test with Donnelly's 1978 correction: under CSR the
+    # 5 % test rejects ~5 % of 2000 patterns (binomial sd 0.5 %), and the simulated mean
+    # NN distance agrees with 0.05222
+    rng = np.random.default_rng(20)
+    pts = rng.uniform(size=(2000, 100, 2))
+    p = np.empty(2000)
+    means = np.empty(2000)
+    for k, xy in enumerate(pts):
+        ce = clark_evans(xy[:, 0], xy[:, 1], 1.0, 4.0)
+        p[k], means[k] = ce.p_value, ce.mean_nn_m
+    assert 0.03 <= np.mean(p < 0.05) <= 0.07
+    assert np.mean(means) == pytest.approx(0.05222, rel=0.005)
+    assert np.var(means) == pytest.approx(8.51e-6, rel=0.15)
+
+
+def test_mean_nn_distance_without_edges_is_half_over_sqrt_density():
+    # Clark & Evans 1954: E[r] = 0.5/sqrt(rho) for an unbounded Poisson pattern; a periodic
+    # (toroidal) square has no edge, so its simulated mean NN distance must match
+    rng = np.random.default_rng(21)
+    n = 400
+    d = [cKDTree(xy, boxsize=1.0).query(xy, k=2)[0][:, 1].mean() for xy in rng.uniform(size=(200, n, 2))]
+    assert np.mean(d) == pytest.approx(csr_mean_nn_distance(n), rel=0.005)
+    assert csr_mean_nn_distance(n) == pytest.approx(0.025)
+
+
+def test_csr_sampler_is_uniform_inside_a_polygon_with_a_hole():
+    # uniform in area (Diggle 2003, ch. 1): share in a sub-region equals its area share,
+    # nothing falls in the hole
+    poly = shapely.Polygon([(0, 0), (4, 0), (4, 2), (0, 2)], holes=[[(1, 0.5), (2, 0.5), (2, 1.5), (1, 1.5)]])
+    pts = simulate_csr(poly, 500, 20, rng=3).reshape(-1, 2)
+    assert np.all(shapely.contains_xy(poly, pts[:, 0], pts[:, 1]))
+    right = np.mean(pts[:, 0] > 2)
+    assert right == pytest.approx(4 / 7, abs=4 * np.sqrt(4 / 7 * 3 / 7 / pts.shape[0]))
+    # the x-coordinates of the right half are uniform (scipy.stats KS as independent reference)
+    assert stats.kstest(pts[pts[:, 0] > 2, 0], stats.uniform(2, 2).cdf).pvalue > 0.001
+    with pytest.raises(InputError):
+        simulate_csr(shapely.Point(0, 0), 10)
+
+
+def _ripley_border_brute(x, y, poly, r):
+    """Double-loop twin of the border-corrected K estimator (Ripley 1988)."""
+    b = np.array([poly.boundary.distance(shapely.Point(a, c)) for a, c in zip(x, y, strict=True)])
+    n = len(x)
+    out = []
+    for rr in r:
+        centres = [i for i in range(n) if b[i] >= rr]
+        count = sum(1 for i in centres for j in range(n) if j != i and np.hypot(x[i] - x[j], y[i] - y[j]) <= rr)
+        out.append(poly.area * count / ((n - 1) * len(centres)))
+    return np.array(out)
+
+
+def test_ripley_k_matches_brute_force_twin():
+    rng = np.random.default_rng(7)
+    x, y = rng.uniform(0, 1, (2, 60))
+    r = np.array([0.05, 0.1, 0.17, 0.25])
+    np.testing.assert_allclose(ripley_k(x, y, UNIT, r), _ripley_border_brute(x, y, UNIT, r))
+
+
+def test_ripley_k_of_poisson_is_pi_r2_and_inside_envelope():
+    # Ripley 1976 (J. Appl. Prob. 13:255), 1977 (JRSS B 39:172): K(r) = pi r^2 under CSR;
+    # Besag 1977: L(r) = r
+    r = default_radii(UNIT)
+    sims = simulate_csr(UNIT, 300, 200, rng=8)
+    k = np.array([ripley_k(s[:, 0], s[:, 1], UNIT, r) for s in sims])
+    np.testing.assert_allclose(k[:, 5:].mean(axis=0), np.pi * r[5:] ** 2, rtol=0.02)
+    np.testing.assert_allclose(besag_l(np.pi * r**2), r)
+    # a further Poisson pattern lies inside the pointwise envelope of 199 simulations
+    env_lo, env_hi = np.nanmin(besag_l(k[1:]), axis=0), np.nanmax(besag_l(k[1:]), axis=0)
+    obs = besag_l(k[0])
+    assert np.mean((obs >= env_lo) & (obs <= env_hi)) >= 0.95
+    # pair correlation of CSR is 1 on average (Stoyan & Stoyan 1994)
+    _, g = pair_correlation(r, k.mean(axis=0))
+    np.testing.assert_allclose(g[5:], 1.0, atol=0.1)
+
+
+def test_thomas_cluster_process_is_detected():
+    # Thomas process (Diggle 2003, s. 5.3): K(r) = pi r^2 + (1 - exp(-r^2/(4 sigma^2)))/rho_parents,
+    # so L exceeds r at cluster scales; Monte Carlo test of Besag & Diggle 1977 at 99 simulations
+    rng = np.random.default_rng(9)
+    x, y = thomas_process(rng, 25, 12, 0.02)
+    res = population_statistics(x * 1e4, y * 1e4, np.full(x.size, 30.0), shapely.box(0, 0, 1e4, 1e4), seed=1)
+    assert res.p("ripley_L_max_deviation") <= 0.01
+    assert res.stat("clark_evans_R") < 0.7
+    assert res.p("pair_correlation_peak") <= 0.01
+    assert res.stat("dbscan_n_clusters") >= 15
+    # most craters carry a cluster label
+    assert np.mean(res.cluster_id >= 0) > 0.8
+
+
+def test_dbscan_finds_almost_nothing_under_csr():
+    # eps = CSR NN distance, min_samples 5: Poisson(pi/4) >= 4 has probability 0.009
+    # (Ester et al. 1996 DBSCAN; Clark & Evans 1954 scale), so < 5 % of CSR points cluster
+    rng = np.random.default_rng(10)
+    shares = [np.mean(dbscan_clusters(*rng.uniform(0, 1, (2, 400)), 1.0) >= 0) for _ in range(20)]
+    assert np.mean(shares) < 0.05
