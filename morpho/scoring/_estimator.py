@@ -16,6 +16,8 @@ mechanism.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.calibration import CalibratedClassifierCV
@@ -25,12 +27,40 @@ from sklearn.utils import check_random_state
 from sklearn.utils.class_weight import compute_sample_weight
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
+from threadpoolctl import threadpool_limits
 
 from . import _typicality as typ
 
 __all__ = ["ImpactSpotClassifier", "log10_lr_from_p"]
 
 _P_CLIP = 1e-6  # keeps log10_lr finite: |log10_lr| <= 6
+
+
+def _single_thread(method):
+    """Run ``method`` with one OpenMP thread.
+
+    The tables are small (thousands of craters): on a shared machine, OpenMP threads
+    spinning for busy cores made boosting 30x slower in our measurements, and one thread
+    keeps results bit-for-bit reproducible.
+    """
+
+    @functools.wraps(method)
+    def wrapper(*args, **kwargs):
+        with threadpool_limits(limits=1, user_api="openmp"):
+            return method(*args, **kwargs)
+
+    return wrapper
+
+
+def _balanced_weights(labels):
+    """Class-balanced sample weights, or None when the classes are already equal in size.
+
+    None keeps the boosting on its fast, unweighted binning path; the result is the same.
+    """
+    counts = np.unique(labels, return_counts=True)[1]
+    if np.all(counts == counts[0]):
+        return None
+    return compute_sample_weight("balanced", labels)
 
 
 def log10_lr_from_p(p):
@@ -131,7 +161,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         return tags
 
     # ------------------------------------------------------------------ fit
-    def _boosting(self, seed, class_weight=None):
+    def _boosting(self, seed):
         return HistGradientBoostingClassifier(
             max_iter=self.max_iter,
             learning_rate=self.learning_rate,
@@ -139,10 +169,10 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             l2_regularization=self.l2_regularization,
             min_samples_leaf=self.min_samples_leaf,
             early_stopping=False,
-            class_weight=class_weight,
             random_state=seed,
         )
 
+    @_single_thread
     def fit(self, X, y):
         """Fit on a feature matrix ``X`` (n_craters, n_features) and family labels ``y``.
 
@@ -164,6 +194,10 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             )
         X, y = validate_data(self, X, y, ensure_all_finite="allow-nan", dtype=np.float64)
         check_classification_targets(y)
+        # Columns never measured in training are constant for the trees (all-NaN columns
+        # break the boosting's quantile binning).
+        self.empty_columns_ = np.all(np.isnan(X), axis=0)
+        X = self._boost_input(X)
         self.classes_, y_idx = np.unique(y, return_inverse=True)
         if self.classes_.size < 2:
             raise ValueError(
@@ -189,7 +223,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         seed = int(rng.randint(np.iinfo(np.int32).max))
         n_min = int(min(is_impact.sum(), (~is_impact).sum()))
         n_splits = max(2, min(int(self.cv), n_min))
-        weights = compute_sample_weight("balanced", is_impact)
+        weights = _balanced_weights(is_impact)
         if n_min >= 2:
             folds = StratifiedKFold(n_splits=n_splits, shuffle=True, random_state=seed)
             self.calibrated_ = CalibratedClassifierCV(
@@ -205,7 +239,8 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         )
         spot = ~is_impact
         if self.spot_classes_.size >= 2:
-            self.family_ = self._boosting(seed, class_weight="balanced").fit(X[spot], y_idx[spot])
+            self.family_ = self._boosting(seed).fit(X[spot], y_idx[spot],
+                                                    sample_weight=_balanced_weights(y_idx[spot]))
         else:
             self.family_ = None
 
@@ -215,8 +250,9 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             mask = np.array([str(n) not in exclude for n in names], dtype=bool)
         else:
             mask = np.ones(X.shape[1], dtype=bool)
+        mask &= ~self.empty_columns_
         if not mask.any():
-            mask = np.ones(X.shape[1], dtype=bool)
+            mask = ~self.empty_columns_ if (~self.empty_columns_).any() else np.ones(X.shape[1], dtype=bool)
         self.typicality_mask_ = mask
         self.center_, self.scale_ = typ.robust_scale(X)
         self.references_ = {}
@@ -234,11 +270,20 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         check_is_fitted(self)
         return validate_data(self, X, reset=False, ensure_all_finite="allow-nan", dtype=np.float64)
 
+    def _boost_input(self, X):
+        if not self.empty_columns_.any():
+            return X
+        X = X.copy()
+        X[:, self.empty_columns_] = 0.0
+        return X
+
     def _p_impact(self, X):
+        X = self._boost_input(X)
         if self.calibrated_ is None:
             return np.full(X.shape[0], 0.5)
         return self.calibrated_.predict_proba(X)[:, 1]
 
+    @_single_thread
     def predict_p_impact(self, X):
         """Calibrated probability of impact versus the spot families under equal priors, shape (n,)."""
         return self._p_impact(self._check(X))
@@ -246,6 +291,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
     def _log10_lr(self, X):
         return log10_lr_from_p(self._p_impact(X))
 
+    @_single_thread
     def predict_log10_lr(self, X):
         """log10 likelihood ratio impact : spot, shape (n,), bounded by +-6."""
         return self._log10_lr(self._check(X))
@@ -253,8 +299,9 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
     def _family_proba(self, X):
         if self.family_ is None:
             return np.ones((X.shape[0], 1))
-        return self.family_.predict_proba(X)
+        return self.family_.predict_proba(self._boost_input(X))
 
+    @_single_thread
     def predict_spot_family(self, X):
         """Most similar spot family and its probability among the spot families.
 
@@ -267,6 +314,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         best = np.argmax(proba, axis=1)
         return self.spot_classes_[best], proba[np.arange(best.size), best]
 
+    @_single_thread
     def predict_proba(self, X):
         """Probability of each class in ``classes_``: ``p_impact`` and ``(1 - p_impact) * p_family``."""
         X = self._check(X)
@@ -294,6 +342,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             cols.append(typ.typicality(Z, ref["points"], ref["loo_scores"], ref["k"]))
         return np.column_stack(cols)
 
+    @_single_thread
     def verdict(self, X):
         """Verdict per crater: ``impact``, ``discharge``, ``neither`` or ``undecided``.
 
@@ -316,6 +365,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         out[~ok_imp & ~ok_spot] = "neither"
         return out
 
+    @_single_thread
     def attributions(self, X, chunk_rows=200_000):
         """Change of ``log10_lr`` when each feature is replaced by the training median.
 
