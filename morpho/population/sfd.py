@@ -172,6 +172,8 @@ def powerlaw_slope_ml(diameter_m, d_min_m: float) -> PowerLawFit:
     d = np.asarray(diameter_m, dtype=float)
     d = d[d >= d_min_m]
     n = d.size
+    if not d_min_m > 0:
+        return PowerLawFit(np.nan, np.nan, np.nan, np.nan, float(d_min_m), n)
     log_sum = float(np.sum(np.log(d / d_min_m)))
     if n < 2 or log_sum <= 0:
         return PowerLawFit(np.nan, np.nan, np.nan, np.nan, float(d_min_m), n)
