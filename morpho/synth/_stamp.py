@@ -14,12 +14,15 @@ __all__ = ["stamp_craters", "measure_stamped"]
 _BLEND_OUTER = 1.5  # terrain inside R is replaced, blended out to 1.5 R
 
 
-def _harmonic_sum(theta, amp, phase, first_order):
-    out = np.zeros_like(theta)
-    for k in range(amp.size):
-        if amp[k]:
-            out += amp[k] * np.cos((k + first_order) * theta + phase[k])
-    return out
+def _harmonic_sum(e, amp, phase, first_order):
+    """``sum_k amp_k cos((k + first_order) theta + phase_k)`` with ``e = exp(i theta)``.
+
+    Horner evaluation in ``e`` (complex multiply-adds instead of one cosine per harmonic).
+    """
+    acc = np.zeros_like(e)
+    for ck in (amp * np.exp(1j * phase))[::-1]:
+        acc = acc * e + ck
+    return (acc * e**first_order).real
 
 
 def stamp_craters(z: np.ndarray, rows, cols, pixel_size_m: float, shapes: CraterShapes, grid, table,
@@ -49,16 +52,17 @@ def stamp_craters(z: np.ndarray, rows, cols, pixel_size_m: float, shapes: Crater
         dy = np.arange(r0, r1)[:, None] - rows[i]
         dx = np.arange(c0, c1)[None, :] - cols[i]
         r = np.hypot(dy, dx)
-        theta = np.arctan2(-dy, dx)  # counter-clockwise from east on a north-up grid
-        rad = R * (1.0 + _harmonic_sum(theta, shapes.outline_amp[i], shapes.outline_phase[i], 2))
+        # e = exp(i theta), theta counter-clockwise from east on a north-up grid
+        e = np.where(r > 0, (dx - 1j * dy) / np.where(r > 0, r, 1.0), 1.0 + 0j)
+        rad = R * (1.0 + _harmonic_sum(e, shapes.outline_amp[i], shapes.outline_phase[i], 2))
         rn = r / rad
         prof = np.interp(rn, grid, table[i], right=0.0)
-        rim_var = _harmonic_sum(theta, shapes.rimvar_amp[i], shapes.rimvar_phase[i], 1)
+        rim_var = _harmonic_sum(e, shapes.rimvar_amp[i], shapes.rimvar_phase[i], 1)
         prof += shapes.rim_height_m[i] * rim_var * np.exp(-(((rn - 1.0) / 0.2) ** 2))
         if shapes.asymmetry[i]:
             inner = rn < 1.0
             prof += np.where(inner, shapes.asymmetry[i] * shapes.depth_m[i] * rn
-                             * np.cos(theta - shapes.asymmetry_dir[i]) * (1.0 - rn**2), 0.0)
+                             * (e * np.exp(-1j * shapes.asymmetry_dir[i])).real * (1.0 - rn**2), 0.0)
         w = np.where(rn <= 1.0, 1.0, np.where(rn < _BLEND_OUTER,
                                               0.5 * (1.0 + np.cos(np.pi * (rn - 1.0) / (_BLEND_OUTER - 1.0))), 0.0))
         win = z[r0:r1, c0:c1]
