@@ -15,32 +15,23 @@ from morpho.cli.main import cli
 from morpho.population import contrast_regions
 from morpho.population.contrast import CONTRAST_COLUMNS
 
-SIDE = 20_000.0
+from .test_population_layouts import SIDE, clustered_layout, random_layout
+
 BOX = shapely.box(0, 0, SIDE, SIDE)
 
 
-def _diameters(rng, n):
-    return 60.0 * (1.0 - rng.uniform(size=n)) ** -0.5
+def _frame(rng, x, y, d, depth=0.20):
+    n = x.size
+    return pd.DataFrame({"x_m": x, "y_m": y, "diameter_m": d, "d_over_D": rng.normal(depth, 0.03, n),
+                         "verdict": rng.choice(["impact-like", "ambiguous"], n, p=[0.8, 0.2])})
 
 
 def random_frame(rng, n=300, depth=0.20):
-    x, y = rng.uniform(0, SIDE, (2, n))
-    return pd.DataFrame({"x_m": x, "y_m": y, "diameter_m": _diameters(rng, n),
-                         "d_over_D": rng.normal(depth, 0.03, n),
-                         "verdict": rng.choice(["impact-like", "ambiguous"], n, p=[0.8, 0.2])})
+    return _frame(rng, *random_layout(rng, n), depth=depth)
 
 
-def clustered_frame(rng, n_parents=20, children=15, sigma=400.0):
-    """Thomas process (Diggle 2003, s. 5.3) clipped to the square."""
-    px, py = rng.uniform(0, SIDE, (2, n_parents))
-    k = rng.poisson(children, n_parents)
-    x = np.repeat(px, k) + rng.normal(0, sigma, k.sum())
-    y = np.repeat(py, k) + rng.normal(0, sigma, k.sum())
-    keep = (x > 0) & (x < SIDE) & (y > 0) & (y < SIDE)
-    n = int(keep.sum())
-    return pd.DataFrame({"x_m": x[keep], "y_m": y[keep], "diameter_m": _diameters(rng, n),
-                         "d_over_D": rng.normal(0.20, 0.03, n),
-                         "verdict": rng.choice(["impact-like", "ambiguous"], n, p=[0.8, 0.2])})
+def clustered_frame(rng):
+    return _frame(rng, *clustered_layout(rng))
 
 
 def _rows(table, quantity, a, b, method_start):

@@ -32,14 +32,14 @@ def random_layout(rng, n, area=BOX):
     return x, y, powerlaw_diameters(rng, x.size)
 
 
-def clustered_layout(rng, n_parents=20, children=15, sigma=400.0):
+def clustered_layout(rng, n_parents=20, children=15, sigma=400.0, side=SIDE, d_min=60.0):
     """Thomas process: Gaussian clusters around Poisson parents (Diggle 2003, s. 5.3)."""
-    px, py = rng.uniform(0, SIDE, (2, n_parents))
+    px, py = rng.uniform(0, side, (2, n_parents))
     k = rng.poisson(children, n_parents)
     x = np.repeat(px, k) + rng.normal(0, sigma, k.sum())
     y = np.repeat(py, k) + rng.normal(0, sigma, k.sum())
-    keep = (x > 0) & (x < SIDE) & (y > 0) & (y < SIDE)
-    return x[keep], y[keep], powerlaw_diameters(rng, int(keep.sum()))
+    keep = (x > 0) & (x < side) & (y > 0) & (y < side)
+    return x[keep], y[keep], powerlaw_diameters(rng, int(keep.sum()), d_min)
 
 
 def chain_layout(rng, n_background=250, d_chain=300.0, spacing=1.6, jitter=0.05):

@@ -17,17 +17,9 @@ from morpho.population.nearest_neighbour import (
 from morpho.population.ripley import besag_l, default_radii, pair_correlation, ripley_k
 from morpho.population.statistics import population_statistics
 
+from .test_population_layouts import clustered_layout
+
 UNIT = shapely.box(0, 0, 1, 1)
-
-
-def thomas_process(rng, n_parents, mean_children, sigma, side=1.0):
-    """Thomas cluster process in [0, side]^2: Gaussian offspring around Poisson parents."""
-    px, py = rng.uniform(0, side, (2, n_parents))
-    k = rng.poisson(mean_children, n_parents)
-    x = np.repeat(px, k) + rng.normal(0, sigma, k.sum())
-    y = np.repeat(py, k) + rng.normal(0, sigma, k.sum())
-    inside = (x > 0) & (x < side) & (y > 0) & (y < side)
-    return x[inside], y[inside]
 
 
 def test_donnelly_expectation_unit_square_n100():
@@ -118,7 +110,7 @@ def test_thomas_cluster_process_is_detected():
     # Thomas process (Diggle 2003, s. 5.3): K(r) = pi r^2 + (1 - exp(-r^2/(4 sigma^2)))/rho_parents,
     # so L exceeds r at cluster scales; Monte Carlo test of Besag & Diggle 1977 at 99 simulations
     rng = np.random.default_rng(9)
-    x, y = thomas_process(rng, 25, 12, 0.02)
+    x, y, _ = clustered_layout(rng, 25, 12, 0.02, side=1.0)
     res = population_statistics(x * 1e4, y * 1e4, np.full(x.size, 30.0), shapely.box(0, 0, 1e4, 1e4), seed=1)
     assert res.p("ripley_L_max_deviation") <= 0.01
     assert res.stat("clark_evans_R") < 0.7
