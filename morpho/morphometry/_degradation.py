@@ -14,6 +14,7 @@ import numpy as np
 from ..bodies import Body, get_body
 from ..shapes import diffuse_radial_profile, fresh_impact_profile
 from ._detrend import plain_level
+from ._refine import find_crest, sharpen_crest
 
 __all__ = ["fit_degradation", "degradation_columns", "KT_GRID"]
 
@@ -37,8 +38,11 @@ def _model_table(diameter_m, body, r_norm):
     fresh = fresh_impact_profile(fine, diameter_m, body) / diameter_m
     # In radius units kappa t / R^2 = 4 kappa t / D^2.
     diffused = diffuse_radial_profile(fine, fresh, 4.0 * KT_GRID)
-    win = (fine >= 0.6) & (fine <= 2.0)
-    crest = fine[win][np.argmax(diffused[:, win], axis=1)]
+    # Crest found as the measurement finds it (maximum, then the sharpening stencil at
+    # its resolution-independent size), so both sides normalise radii the same way.
+    found = find_crest(diffused[None], fine, (0.6, 2.0))
+    crest = sharpen_crest(diffused[None], fine, found, np.array([1e6])).r_norm[0]
+    crest = np.where(np.isfinite(crest), crest, 1.0)
     model = np.stack([np.interp(r_norm * c, fine, row) / c for row, c in zip(diffused, crest, strict=True)])
     return model - plain_level(model, r_norm)[:, None], crest
 

@@ -55,8 +55,8 @@ def azimuth_features(theta, crest_r_m, crest_z, curv, angle):
 
     Parameters
     ----------
-    theta : ndarray, shape (..., n_az)
-        Azimuths (radians, counter-clockwise from east).
+    theta : ndarray, shape (n_az,) or (b, n_az)
+        Azimuths (radians, counter-clockwise from east), broadcast over the crater axis.
     crest_r_m : ndarray, shape (..., n_az)
         Crest distance from the refined centre, metres (NaN = no crest).
     crest_z : ndarray, shape (..., n_az)
@@ -68,7 +68,7 @@ def azimuth_features(theta, crest_r_m, crest_z, curv, angle):
     -------
     dict of str -> ndarray, shape (...)
     """
-    x = crest_r_m * np.cos(theta)
+    x = crest_r_m * np.cos(theta)  # theta (n_az,) or (b, n_az): broadcast over craters
     y = crest_r_m * np.sin(theta)
     _, _, radius = fit_circle(x, y)
     major, minor, az = fit_ellipse(x, y)
@@ -121,8 +121,9 @@ def _crossing(level, q, hi):
 
 
 def _loglog_slope(x, y, mask):
-    """Least-squares slope of log y against log x over ``mask`` (..., n); NaN if < 3 points."""
-    ok = mask & (y > 0) & (x > 0)
+    """Least-squares slope of log y against log x over ``mask`` (1-D); NaN if < 3 points."""
+    x, y = x[mask], y[..., mask]
+    ok = (y > 0) & (x > 0)
     with np.errstate(invalid="ignore", divide="ignore"):
         lx = np.where(ok, np.log(np.where(ok, x, 1.0)), 0.0)
         ly = np.where(ok, np.log(np.where(ok, y, 1.0)), 0.0)
@@ -142,9 +143,11 @@ def _floor_level(m, r_norm, interior, floor_min, depth_min):
     around a central peak) and returns the fitted curve's lowest value on those radii:
     exact for a paraboloid and for a flat floor (derived).
     """
+    ni = int(interior.sum())  # interior is a prefix of the radii: work on that slice only
+    m, r_norm = m[..., :ni], r_norm[:ni]
     with np.errstate(invalid="ignore", divide="ignore"):
         level = (m - floor_min[..., None]) / depth_min[..., None]
-    sel = interior & np.isfinite(m) & (level <= 0.1)
+    sel = np.isfinite(m) & (level <= 0.1)
     x = r_norm**2
     w = np.where(sel, np.maximum(r_norm, 0.5 * (r_norm[1] - r_norm[0])), 0.0)
     y = np.where(sel, m, 0.0)

@@ -126,39 +126,35 @@ def fit_ellipse(x, y, w=None):
     return (np.where(bad, nan, major), np.where(bad, nan, minor), np.where(bad, nan, az))
 
 
-def harmonic_amplitudes(theta, values, kmax, w=None):
-    """Amplitudes of azimuthal harmonics 0..kmax of ``values(theta)`` (weighted DFT).
+def harmonic_amplitudes(theta, values, kmax):
+    """Amplitudes of azimuthal harmonics 0..kmax of ``values(theta)`` (DFT over valid samples).
 
     Parameters
     ----------
-    theta : ndarray, shape (..., m)
-        Azimuths in radians.
-    values : ndarray, shape (..., m)
+    theta : ndarray, shape (m,) or (b, m)
+        Azimuths in radians; broadcast against the trailing axes of ``values`` (the same
+        azimuth draw serves every crater, so the trigonometric table is built once).
+    values : ndarray, shape (..., m) or (..., b, m)
         Samples; NaN ignored.
     kmax : int
         Highest harmonic.
-    w : ndarray, optional
-        Weights, shape (..., m).
 
     Returns
     -------
     ndarray, shape (..., kmax + 1)
-        ``amp[..., 0]`` is the weighted mean; ``amp[..., k]`` the amplitude of
-        ``cos(k theta - phase)``.
+        ``amp[..., 0]`` is the mean; ``amp[..., k]`` the amplitude of ``cos(k theta - phase)``.
     """
-    ok = np.isfinite(values) & np.isfinite(theta)
-    ww = ok.astype(float) if w is None else np.where(ok, w, 0.0)
-    val = np.where(ok, values, 0.0)
-    sw = ww.sum(-1)
+    ok = np.isfinite(values)
+    sw = ok.sum(-1)
     k = np.arange(kmax + 1)
-    ang = theta[..., None] * k  # (..., m, k)
+    ang = np.asarray(theta)[..., None] * k  # (..., m, k), no crater axis
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = (ww * val).sum(-1) / sw
+        mean = np.where(ok, values, 0.0).sum(-1) / sw
         # Removing the mean first stops it leaking into k >= 1 when the azimuths are
-        # unevenly weighted (bootstrap resamples).
-        val = np.where(ok, val - mean[..., None], 0.0)
-        c = np.einsum("...m,...mk->...k", ww * val, np.cos(ang)) / sw[..., None]
-        s = np.einsum("...m,...mk->...k", ww * val, np.sin(ang)) / sw[..., None]
+        # unevenly represented (gaps, bootstrap resamples).
+        val = np.where(ok, values - mean[..., None], 0.0)[..., None, :]
+        c = np.matmul(val, np.cos(ang))[..., 0, :] / sw[..., None]
+        s = np.matmul(val, np.sin(ang))[..., 0, :] / sw[..., None]
     amp = 2.0 * np.hypot(c, s)
     amp[..., 0] = mean
     return amp

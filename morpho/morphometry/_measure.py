@@ -7,7 +7,13 @@ import pandas as pd
 
 from ._degradation import degradation_columns
 from ._features import azimuth_features, crest_shape, profile_features
-from ._refine import MIN_COVERAGE, detrended_profiles, find_crest, refine_craters
+from ._refine import (
+    MIN_COVERAGE,
+    detrended_profiles,
+    find_crest,
+    refine_craters,
+    sharpen_crest,
+)
 from ._validate import as_centres, as_dem, as_spacing
 
 __all__ = ["measure_craters", "measure_crater", "FEATURES_WITH_ERROR"]
@@ -42,10 +48,11 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths)
     r_norm, az = prof.r_norm, prof.azimuths
     crest = find_crest(zd, r_norm, FINAL_WINDOW)
+    crest = sharpen_crest(zd, r_norm, crest, rad)
     radius_m = rad * spacing
     crest_r_m = crest.r_norm * radius_m[:, None]
     curv, angle = crest_shape(zd, r_norm, crest.r_norm, crest.z, radius_m)
-    theta = np.broadcast_to(az, crest_r_m.shape)
+    theta = az
     valid = np.isfinite(zd)
     zf = np.where(valid, zd, 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -63,7 +70,8 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
             boot_prof = (np.matmul(zf.transpose(0, 2, 1), counts.T)
                          / np.matmul(valid.transpose(0, 2, 1).astype(float), counts.T)).transpose(0, 2, 1)
         pick = (slice(None), boot_idx)
-        azb = azimuth_features(theta[pick], crest_r_m[pick], crest.z[pick], curv[pick], angle[pick])
+        azb = azimuth_features(theta[boot_idx], crest_r_m[pick], crest.z[pick], curv[pick],
+                               angle[pick])
         boot = _combine(azb, profile_features(boot_prof, r_norm, radius_m[:, None], azb["rim_z"]))
         with np.errstate(invalid="ignore"):
             for name in FEATURES_WITH_ERROR:

@@ -8,11 +8,12 @@ import numpy as np
 import pandas as pd
 
 from ._detrend import detrend_profiles
-from ._geometry import fit_circle
+from ._geometry import fit_circle, interp_last
 from ._validate import as_centres, as_dem, as_spacing
 from .profiles import sample_polar, sample_radial_profiles
 
-__all__ = ["Crest", "find_crest", "refine_craters", "detrended_profiles", "n_radii_for", "R_MAX"]
+__all__ = ["Crest", "find_crest", "sharpen_crest", "refine_craters", "detrended_profiles",
+           "n_radii_for", "R_MAX"]
 
 #: Outer profile radius (crater radii) and bounds on radial samples per profile: a batch
 #: samples every ~0.35 px of its largest crater, between 41 (dr = 0.0625 R) and 121 (0.021 R).
@@ -20,7 +21,7 @@ R_MAX = 2.5
 N_RADII = (41, 121)
 #: Minimum share of azimuths with a valid crest for a usable measurement (common practice).
 MIN_COVERAGE = 0.5
-ORDER = 3
+ORDER = 1
 
 
 @dataclass(frozen=True)
@@ -77,6 +78,65 @@ def find_crest(zd, r_norm, window=(0.6, 1.6)):
     z_c = z0 - 0.25 * (zm - zp) * off
     good = inside & np.isfinite(top) & np.isfinite(zm) & np.isfinite(zp)
     return Crest(np.where(good, r_c, np.nan), np.where(good, z_c, np.nan))
+
+
+def _quadratic(t, z):
+    """Coefficients (c2, c1, c0) of the parabola through three points (divided differences)."""
+    (t0, t1, t2), (z0, z1, z2) = t, z
+    f01 = (z1 - z0) / (t1 - t0)
+    f12 = (z2 - z1) / (t2 - t1)
+    c2 = (f12 - f01) / (t2 - t0)
+    c1 = f01 - c2 * (t0 + t1)
+    return c2, c1, z0 - c1 * t0 - c2 * t0 * t0
+
+
+def stencil(radius_px):
+    """Inner and outer offsets (crater radii) of the crest-sharpening samples, shape (n, 1)."""
+    px = 1.0 / np.asarray(radius_px, dtype=float)[:, None]  # one pixel in crater radii
+    a = np.maximum(0.05, px)
+    return a, a + np.maximum(0.1, 2.0 * px)
+
+
+def sharpen_crest(zd, r_norm, crest, radius_px):
+    """Move each crest to where the inner-wall and outer-flank curves, extrapolated, meet.
+
+    Sampling blurs a sharp rim over about a pixel, and because the inner wall is steeper
+    than the flank the blurred maximum sits outside the true crest (by ~0.35 px for
+    d/D = 0.2; derived for a tent kernel). A parabola through three samples 1-3 px (at
+    least 0.05-0.15 R) inside the maximum and another outside, beyond the blur, are
+    extrapolated to where they meet. The shift is kept only when it stays within the blur
+    zone; for a rounded, resolved crest the two curves meet near the maximum anyway.
+
+    Returns
+    -------
+    Crest
+        Sharpened crest radius (crater radii) and height.
+    """
+    dr = r_norm[1] - r_norm[0]  # r_norm must be uniform over the stencil's reach
+    a, b = stencil(radius_px)
+    mid = 0.5 * (a + b)
+    rc = crest.r_norm
+    offs = (-b, -mid, -a, a, mid, b)
+    idx = (np.stack([rc + o for o in offs], -1) - r_norm[0]) / dr
+    zs = np.moveaxis(interp_last(zd, idx), -1, 0)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        q_in = _quadratic(offs[:3], zs[:3])
+        q_out = _quadratic(offs[3:], zs[3:])
+        A2, A1, A0 = (u - v for u, v in zip(q_in, q_out, strict=True))
+        disc = np.sqrt(A1 * A1 - 4 * A2 * A0)
+        roots = np.stack([(-A1 + disc) / (2 * A2), (-A1 - disc) / (2 * A2), -A0 / A1])
+        roots = np.where(np.isfinite(roots), roots, np.inf)
+        lin = np.abs(A2) < 1e-9 * (np.abs(A1) + 1e-300)
+        roots[:2] = np.where(lin, np.inf, roots[:2])
+        t = np.take_along_axis(roots, np.argmin(np.abs(roots), 0)[None], 0)[0]
+        ok = np.isfinite(t) & (np.abs(t) < a)
+        # Height where the curves meet restores the crest the blur shaved off. Bounded to
+        # the rise of the inner wall over a quarter pixel: a resolved, rounded crest (whose
+        # extrapolated flanks meet above it) then gains almost nothing.
+        z_x = q_in[0] * t * t + q_in[1] * t + q_in[2]
+        rise = np.abs(crest.z - zs[2]) / a * 0.25 / radius_px[:, None]
+        z_new = np.clip(z_x, crest.z, crest.z + rise)
+    return Crest(np.where(ok, rc + t, rc), np.where(ok & np.isfinite(z_new), z_new, crest.z))
 
 
 def _crest_points(crest, azimuths, radius_px):
@@ -169,8 +229,10 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
     # Only the crest window (uniform) and a few rings of the plane annulus are needed here.
     # ~0.25 px steps across the window: a coarse grid biases the parabolic peak of an
     # asymmetric (steep wall, gentle flank) crest outwards.
-    n_win = (window[1] - window[0]) * float(np.max(rad, initial=1.0)) / 0.25
-    grid = np.linspace(window[0], window[1], int(np.clip(np.ceil(n_win), 9, 400)))
+    # The sharpening stencil reaches up to b inside the window's lower edge.
+    lo = max(0.0, window[0] - float(np.max(stencil(rad)[1], initial=0.15)) - 0.02)
+    n_win = (window[1] - lo) * float(np.max(rad, initial=1.0)) / 0.25
+    grid = np.linspace(lo, window[1], int(np.clip(np.ceil(n_win), 12, 500)))
     grid = np.concatenate([grid, np.linspace(1.5, R_MAX, 9)[np.linspace(1.5, R_MAX, 9) > window[1]]])
     for _ in range(n_iter):
         if n == 0:
@@ -178,6 +240,7 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
         zp = sample_polar(z, rows, cols, rad, az, grid, order=ORDER)
         zd, _ = detrend_profiles(zp, grid, az, rad)
         crest = find_crest(zd, grid, window)
+        crest = sharpen_crest(zd, grid, crest, rad)
         coverage = np.isfinite(crest.r_norm).mean(axis=1)
         has_data = np.isfinite(zp).any(axis=(1, 2))
         x, y = _crest_points(crest, az, rad)
