@@ -324,7 +324,7 @@ def survey(
 
     Examples
     --------
-    >>> res = survey("sample_dems/highland_block_a.tif")  # doctest: +SKIP
+    >>> res = survey("sample_dems/kessel_halden_block.tif")  # doctest: +SKIP
     >>> res.craters[["diameter_m", "d_over_D", "p_impact", "verdict"]].head()  # doctest: +SKIP
     """
     t_start = time.perf_counter()
