@@ -104,16 +104,10 @@ def test_existing_companion_blocks_the_export(tmp_path, gpkg):
 
 
 def test_interrupted_export_leaves_nothing(tmp_path, gpkg, monkeypatch):
-    real = _export._csv_bytes
-    calls = []
+    def fail(doc):  # the feature table is on disk (temporary) when the dictionary fails
+        raise MemoryError("simulated")
 
-    def flaky(frame):
-        calls.append(1)
-        if len(calls) == 2:  # the table is on disk (temporary), the dictionary fails
-            raise MemoryError("simulated")
-        return real(frame)
-
-    monkeypatch.setattr(_export, "_csv_bytes", flaky)
+    monkeypatch.setattr(_export, "_dictionary_csv", fail)
     with pytest.raises(MemoryError):
         export_features(gpkg, tmp_path / "features.csv")
     assert [p.name for p in tmp_path.iterdir()] == ["survey.gpkg"]
@@ -136,3 +130,17 @@ def test_cli_export_and_overwrite_guard(tmp_path, gpkg):
     assert "--overwrite" in res.output and "Traceback" not in res.output
     res = runner.invoke(cli, ["export", str(tmp_path / "nope.gpkg"), "-o", str(tmp_path / "g.csv")])
     assert res.exit_code == 2 and "no such file" in res.output
+
+
+def test_round_significant_matches_python_formatting():
+    # reference: Python's own "%.10g" (correctly rounded decimal conversion, C99 printf semantics)
+    rng = np.random.default_rng(0)
+    x = rng.uniform(-1, 1, 20_000) * 10.0 ** rng.integers(-30, 30, 20_000)
+    x[:4] = [0.0, 1000.0, 999.99999999999, 1e22]
+    got = _export.round_significant(x)
+    ref = np.array([float(f"{v:.10g}") for v in x])
+    same = got == ref
+    # exact ties may round the other way in binary: one unit of the 10th digit at most
+    assert same.mean() > 0.999
+    np.testing.assert_allclose(got, ref, rtol=1.01e-9, atol=0)
+    assert np.isnan(_export.round_significant([np.nan])[0])

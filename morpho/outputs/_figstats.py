@@ -7,7 +7,6 @@ curve comes from or why a panel is missing, and goes into the report beside it.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 from matplotlib.figure import Figure
 
 from .. import dictionary
@@ -16,6 +15,9 @@ from ._style import verdict_colour
 __all__ = ["counted_area_m2", "dd_figure", "sfd_figure", "ripley_figure", "distributions_figure",
            "feature_columns"]
 
+#: the features a reviewer looks at first when they exist (shape ratios, walls, residuals, score)
+_PREFERRED = ("d_over_D", "h_over_D", "wall_slope_upper_deg", "floor_diameter_fraction",
+              "interior_shape_exponent", "depth_residual_log10", "ellipticity", "p_impact")
 _SKIP = {"center_x", "center_y", "lon", "lat", "cluster_id", "chain_id"}
 
 
@@ -47,19 +49,13 @@ def counted_area_m2(footprint, population) -> tuple[float | None, str]:
 
 
 def _fresh_relation(diameter_m, body):
-    """Published fresh-crater depth d(D) for the body and a label naming its source."""
-    try:
-        from ..scaling import expected_fresh
+    """Published fresh-crater depth d(D) for the body, validity flags and the law's name."""
+    from ..scaling import expected_fresh
 
-        res = expected_fresh(diameter_m, body)
-        depth = res["depth_m"] if isinstance(res, (dict, pd.DataFrame)) else res.depth_m
-        return np.asarray(depth, dtype=float), "morpho.scaling.expected_fresh"
-    except (ImportError, AttributeError, KeyError, TypeError):
-        pass
-    from ..shapes import fresh_impact_morphometry
-
-    fresh = fresh_impact_morphometry(diameter_m, body)
-    return fresh.depth_m, "fresh-crater depth laws of impact.toml (Pike 1977 and per-body laws)"
+    res = expected_fresh(diameter_m, body)
+    inside = res["in_validity_range"].to_numpy(bool)
+    law = str(res["law"].iloc[0]) if len(res) else ""
+    return res["depth_m"].to_numpy(float), inside, f"morpho.scaling law set {law!r}"
 
 
 def _depth_ratio(craters):
@@ -87,15 +83,25 @@ def dd_figure(craters, body: str | None):
     D = craters["diameter_m"].to_numpy(float)
     for label, m, colour in _by_verdict(craters):
         ok = m & np.isfinite(ratio) & (ratio > 0) & (D > 0)
-        ax.errorbar(D[ok] / 1000, ratio[ok], yerr=None if ratio_err is None else ratio_err[ok],
-                    fmt="o", ms=3, color=colour, alpha=0.7, elinewidth=0.6, label=label)
+        # error bars only while they stay readable
+        yerr = None if ratio_err is None or len(D) > 400 else ratio_err[ok]
+        ax.errorbar(D[ok] / 1000, ratio[ok], yerr=yerr, fmt="o", ms=2.5 if len(D) > 400 else 3.5,
+                    color=colour, alpha=0.6, elinewidth=0.6, label=label)
     note = "No body recorded: no reference relation drawn."
     if body:
         grid = np.geomspace(max(np.nanmin(D) * 0.8, 1.0), np.nanmax(D) * 1.25, 200)
         try:
-            depth, source = _fresh_relation(grid, body)
-            ax.plot(grid / 1000, depth / grid, color="black", lw=1.4, label=f"fresh impact ({body})")
-            note = f"Black line: published fresh-crater depth relation for {body} ({source})."
+            depth, inside, source = _fresh_relation(grid, body)
+            ratio_law = depth / grid
+            ax.plot(grid / 1000, np.where(inside, ratio_law, np.nan), color="black", lw=1.4,
+                    label=f"fresh impact ({body})")
+            ax.plot(grid / 1000, np.where(inside, np.nan, ratio_law), color="black", lw=1.0, ls=":",
+                    label="outside the law's fitted range")
+            note = (f"Black line: published fresh-crater depth relation for {body} ({source}); "
+                    "dotted where extrapolated beyond the diameters it was fitted on. Error bars: "
+                    "1-sigma bootstrap uncertainty, drawn up to 400 craters.")
+            if not np.isfinite(depth).any():
+                note = f"No published fresh-crater depth law for body {body!r}."
         except (ValueError, KeyError, LookupError) as err:
             note = f"No fresh-crater relation for body {body!r}: {err}"
     ax.set_xscale("log")
@@ -171,8 +177,7 @@ def feature_columns(craters, limit: int = 9) -> list[str]:
                 and dictionary.get_field(name).dtype == "float64")
 
     shape = [f.name for f in _morphometry.FIELDS + _scaling.FIELDS]
-    ordered = ["diameter_m", *shape, "p_impact", "log10_lr", "typicality_impact", "typicality_spot",
-               *dictionary.CRATER_COLUMNS]
+    ordered = ["diameter_m", *_PREFERRED, *shape, *dictionary.CRATER_COLUMNS]
     out = list(dict.fromkeys(n for n in ordered if usable(n)))
     return out[:limit]
 

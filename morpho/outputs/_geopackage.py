@@ -125,7 +125,8 @@ def write_geopackage(path, craters, *, population=None, chains=None, footprint=N
     with atomic_paths([target]) as (tmp,):
         try:
             for name, frame in layers.items():
-                kwargs = {}
+                # Arrow batches halve the write time of the wide crater table
+                kwargs = {"use_arrow": True}
                 if name in geometry_types:
                     kwargs["geometry_type"] = _geometry_type(frame, geometry_types[name])
                 _write_layer(frame, tmp, name, **kwargs)
@@ -179,7 +180,7 @@ def read_survey(path) -> SurveyOutput:
         if layer not in found:
             return None
         return pyogrio.read_dataframe(path, layer=layer, read_geometry=spatial,
-                                      fid_as_index=False)
+                                      fid_as_index=False, use_arrow=True)
 
     craters = _schema.restore_dtypes(read("craters"))
     population = read("population", spatial=False)

@@ -42,6 +42,8 @@ def _column(field, n: int, rng: np.random.Generator, base: dict[str, np.ndarray]
     if dtype == "int64":
         return rng.integers(0, 10, n).astype(np.int64)
     d = base["diameter_m"]
+    if name.endswith("_over_D"):
+        return rng.uniform(0.05, 0.22, n) * (0.2 if name.startswith("h_") else 1.0)
     if field.unit == "m" and "depth" in name:
         return d * rng.uniform(0.08, 0.2, n)
     if field.unit == "m":
