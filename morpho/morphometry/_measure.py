@@ -150,7 +150,7 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
     >>> z = np.where(r <= 1, 8.0 * r**2 - 6.0, 2.0 * np.maximum(r, 1) ** -3)
     >>> t = measure_craters(z, 10.0, [50.0], [50.0], [20.0], n_boot=0)
     >>> round(float(t.depth_m[0]), 1), round(float(t.diameter_m[0]) / 400.0, 2)
-    (7.9, 1.02)
+    (8.0, 1.0)
     """
     z = as_dem(z)
     r0, c0, rad0 = as_centres(rows, cols, radius_px)
