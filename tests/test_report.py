@@ -17,6 +17,7 @@ from html.parser import HTMLParser
 
 import matplotlib.image as mpimg
 import numpy as np
+import pyproj
 import pytest
 import rasterio
 import shapely
@@ -157,3 +158,30 @@ def test_report_renders_in_a_headless_browser(report, tmp_path):
     assert (img.mean(axis=2) < 0.9).mean() > 0.05
     amber = (np.abs(img - np.array([1.0, 246 / 255, 224 / 255])) < 0.02).all(axis=2)
     assert amber.mean() > 0.005
+
+
+def test_relief_of_a_geographic_dem_is_drawn_in_its_own_degrees(tmp_path):
+    """A lon/lat DEM is warped for measuring; the map must still sit in lon/lat.
+
+    Reference: the GeoTIFF's own geotransform (rasterio) gives the bounds in degrees.
+    """
+    from morpho.outputs._figmap import load_relief
+
+    crs = pyproj.CRS.from_proj4("+proj=longlat +R=1737400 +no_defs +type=crs")
+    n, px, lon0, lat0 = 120, 0.01, 30.0, 41.0
+    rows, cols = np.mgrid[0:n, 0:n]
+    z = 300.0 * np.hypot(rows - 60, cols - 60) / 60.0
+    path = tmp_path / "geo.tif"
+    with rasterio.open(path, "w", driver="GTiff", height=n, width=n, count=1, dtype="float32",
+                       crs=crs.to_wkt(), transform=Affine(px, 0, lon0, 0, -px, lat0)) as ds:
+        ds.write(z.astype("float32"), 1)
+        bounds = ds.bounds
+    relief, note = load_relief(path, crs)
+    assert relief is not None, note
+    assert "extent" not in relief  # drawn as a mesh through the warp's inverse
+    x, y = relief["x"], relief["y"]
+    # mesh within a few pixels of the source bounds
+    assert abs(np.nanmin(x) - bounds.left) < 3 * px and abs(np.nanmax(x) - bounds.right) < 3 * px
+    assert abs(np.nanmin(y) - bounds.bottom) < 3 * px and abs(np.nanmax(y) - bounds.top) < 3 * px
+    # a cone shades differently on each flank
+    assert np.ptp(relief["shade"].compressed()) > 0.1

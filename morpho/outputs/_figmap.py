@@ -103,7 +103,6 @@ def _draw_base(ax, relief, footprint):
     if footprint is not None and len(footprint):
         for ring in _rings(footprint.geometry.values):
             ax.plot(ring[:, 0], ring[:, 1], color="black", lw=0.8, ls="--")
-    ax.set_aspect("equal")
     ax.ticklabel_format(useOffset=False, style="plain")
     ax.tick_params(labelsize=7)
 
@@ -127,6 +126,21 @@ def _largest_part(geoms):
     order = np.lexsort((-area, owner))
     first = np.r_[True, np.diff(owner[order]) != 0]
     return parts[order[first]]
+
+
+def _axes_units(ax, crs):
+    """Equal ground scale on both axes, labelled in the CRS's units."""
+    if crs is not None and crs.is_geographic:
+        # a degree of longitude spans cos(latitude) of a degree of latitude
+        lat = np.clip(np.mean(ax.get_ylim()), -85.0, 85.0)
+        ax.set_aspect(1.0 / np.cos(np.deg2rad(lat)))
+        ax.set_xlabel("longitude (degree)", fontsize=8)
+        ax.set_ylabel("latitude (degree)", fontsize=8)
+        return
+    ax.set_aspect("equal")
+    unit = crs.axis_info[0].unit_name if crs is not None and crs.axis_info else "map unit"
+    ax.set_xlabel(f"easting ({unit})", fontsize=8)
+    ax.set_ylabel(f"northing ({unit})", fontsize=8)
 
 
 def map_figure(craters, *, colour_by: str, relief=None, footprint=None, title: str = "",
@@ -172,8 +186,7 @@ def map_figure(craters, *, colour_by: str, relief=None, footprint=None, title: s
     if len(polys) or relief is not None:
         ax.autoscale_view()
     ax.set_title(title or f"Crater rims coloured by {colour_by}", fontsize=9)
-    ax.set_xlabel("x (map units)", fontsize=8)
-    ax.set_ylabel("y (map units)", fontsize=8)
+    _axes_units(ax, craters.crs)
     if not len(polys):
         ax.text(0.5, 0.5, "no craters", transform=ax.transAxes, ha="center", va="center")
     return fig
