@@ -18,6 +18,7 @@ Explosion Cratering, Pergamon, 489-509 (rim-crest diameter as the crater size).
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,6 +33,7 @@ _WIN = (0.5, 1.5)  # rim-crest search window, radii
 _RING = (1.3, 2.0)  # surroundings for the regional plane, radii
 _SUBSAMPLE = 0.0
 _CHUNK = 1500
+_FLOOR_MAX = 0.6  # floor searched inside this radius (crater radii)
 
 
 @dataclass(frozen=True)
@@ -45,6 +47,13 @@ class Verified:
     rim_coverage: np.ndarray
     depth: np.ndarray
     terms: dict
+
+
+def _nanreduce(func, a, axis):
+    """NaN-aware reduction returning NaN for all-NaN slices without a warning."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return func(a, axis=axis)
 
 
 def _plane_basis(prof) -> np.ndarray:
@@ -128,10 +137,11 @@ def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII):
                                   r_max_factor=_R_MAX)
     d, rough = _detrend(prof)
     rho, height, found, ok = _crests(d, prof.r_norm)
-    centre = prof.r_norm <= 0.3
-    with np.errstate(invalid="ignore"):
-        floor = np.nanmean(np.where(centre[None, None, :], d, np.nan), axis=(1, 2))
-    floor = np.nan_to_num(floor, nan=np.inf)
+    # Floor = lowest level of the azimuth-averaged interior profile, not the centre: complex
+    # craters carry central peaks or mounds above their floor.
+    inner = prof.r_norm <= _FLOOR_MAX
+    mean_prof = _nanreduce(np.nanmean, d[:, :, inner], axis=1)
+    floor = np.nan_to_num(_nanreduce(np.nanmin, mean_prof, axis=1), nan=np.inf)
     relief = height - floor[:, None]
     # A crest counts when it rises above the floor and is a real maximum inside the window.
     good = found & (relief > 0)
@@ -141,7 +151,7 @@ def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII):
 def _refit(rows, cols, rad, az, rho, good, n_az):
     """Move each centre and radius to the circle through its rim crests (Kasa fit)."""
     with np.errstate(invalid="ignore"):
-        med = np.nanmedian(np.where(good, rho, np.nan), axis=1)
+        med = _nanreduce(np.nanmedian, np.where(good, rho, np.nan), axis=1)
     # Crests far from the typical one are neighbours' rims or terrain, not this rim.
     w = (good & (np.abs(rho - med[:, None]) < 0.25 * med[:, None])).astype(np.float64)
     dist = rho * rad[:, None]
@@ -157,9 +167,9 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     coverage = ok.mean(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
         r_good = np.where(good, rho, np.nan)
-        med = np.nanmedian(r_good, axis=1)
-        spread = np.nanmedian(np.abs(r_good - med[:, None]), axis=1) / med
-        depth = np.nanmedian(np.where(good, relief, np.nan), axis=1)
+        med = _nanreduce(np.nanmedian, r_good, axis=1)
+        spread = _nanreduce(np.nanmedian, np.abs(r_good - med[:, None]), axis=1) / med
+        depth = _nanreduce(np.nanmedian, np.where(good, relief, np.nan), axis=1)
         snr = depth / rough
     depth = np.nan_to_num(depth, nan=0.0)
     ratio = depth / (2.0 * rad * spacing_m)
@@ -168,7 +178,7 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     # and below were set on synthetic scenes of morpho.synth (benchmarks/bench_detection.py).
     t_round = 1.0 - np.clip((np.nan_to_num(spread, nan=1.0) - 0.1) / 0.2, 0.0, 1.0)
     t_depth = np.clip((ratio - 0.5 * min_depth_ratio) / (1.5 * min_depth_ratio), 0.0, 1.0)
-    t_snr = 1.0 - np.exp(-np.clip(np.nan_to_num(snr, nan=0.0, posinf=1e6), 0.0, None) / 3.0)
+    t_snr = 1.0 - np.exp(-np.clip(np.nan_to_num(snr, nan=0.0, posinf=1e6), 0.0, None) / 5.0)
     share = good.sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
     # Crests far from the fitted radius mean the refinement did not converge on this rim.
     t_fit = 1.0 - np.clip((np.abs(np.nan_to_num(med, nan=0.0) - 1.0) - 0.1) / 0.15, 0.0, 1.0)
