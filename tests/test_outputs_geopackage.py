@@ -115,6 +115,7 @@ def test_undocumented_column_is_rejected_before_writing(tmp_path, craters):
     (lambda c: c.assign(crater_id="same"), "unique"),
     (lambda c: c.set_crs(None, allow_override=True), "no CRS"),
     (lambda c: c.set_geometry(c.centroid), "polygons"),
+    (lambda c: c.assign(diameter_m="wide"), "cannot be stored as float64"),
 ])
 def test_bad_crater_tables_are_rejected(tmp_path, craters, mutate, match):
     with pytest.raises(InputError, match=match):
@@ -192,3 +193,13 @@ def test_default_style_colours_craters_by_verdict(tmp_path, craters):
     assert renderer.get("attr") == "verdict"
     values = {c.get("value") for c in renderer.iter("category")}
     assert values == set(craters["verdict"])
+
+
+def test_missing_values_never_become_true(tmp_path, craters):
+    bools = [f.name for f in dictionary.CRATER_FIELDS if f.dtype == "bool" and f.name in craters]
+    if not bools:
+        pytest.skip("the dictionary declares no boolean crater column")
+    bad = craters.astype({bools[0]: object})
+    bad.loc[0, bools[0]] = None
+    with pytest.raises(InputError, match="missing values"):
+        write_geopackage(tmp_path / "o.gpkg", bad)

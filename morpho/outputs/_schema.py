@@ -55,6 +55,10 @@ def _cast(df: pd.DataFrame, dtypes: dict[str, str], *, path, table: str) -> pd.D
         if want == "str":
             # None/NaN stay missing (written as NULL); everything else becomes text.
             col = col.astype(object).where(col.notna(), None)
+        elif want == "bool" and col.dtype != bool and col.isna().any():
+            # astype(bool) would turn a missing value into True without a word
+            raise InputError(f"{table} column {name!r} is boolean but has missing values.", path=path,
+                             fix="fill them with False (or declare the column as text) before writing")
         try:
             out[name] = col.astype(want)
         except (TypeError, ValueError) as err:
