@@ -17,7 +17,7 @@ ANNULUS = (1.3, 2.5)
 FLANK_EXPONENT = 3.0
 
 
-def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=4):
+def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=3):
     """Fit ``z = a + b u + c v + e (r/R)^-3`` to an annulus by iteratively reweighted LSQ.
 
     The plane ``a + b u + c v`` is the surrounding plain; the ``e (r/R)^-3`` term absorbs
@@ -54,8 +54,8 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=4
     least-squares. Commun. Stat. Theory Methods 6(9):813-827.
     """
     sel = np.flatnonzero((r_norm >= annulus[0]) & (r_norm <= annulus[1]))
-    if sel.size > 16:  # ~16 rings x n_az samples are plenty for three coefficients
-        sel = sel[:: int(np.ceil(sel.size / 16))]
+    if sel.size > 10:  # ~10 rings x n_az samples are plenty for four coefficients
+        sel = sel[:: int(np.ceil(sel.size / 10))]
     n = zp.shape[0]
     z = zp[:, :, sel].reshape(n, -1)
     rr = radius_px[:, None, None] * r_norm[sel][None, None, :]
@@ -94,11 +94,12 @@ def detrend_profiles(zp, r_norm, azimuths, radius_px, annulus=ANNULUS):
         Plane coefficients from :func:`fit_annulus_plane`.
     """
     coef = fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus)
-    rr = radius_px[:, None, None] * r_norm[None, None, :]
-    plane = (coef[:, 0, None, None]
-             + coef[:, 1, None, None] * rr * np.cos(azimuths)[None, :, None]
-             + coef[:, 2, None, None] * rr * np.sin(azimuths)[None, :, None])
-    return zp - plane, coef
+    # a + r (b cos az + c sin az): one (n, n_az, 1) x (n, 1, n_r) product.
+    rr = radius_px[:, None] * r_norm[None, :]
+    tilt = coef[:, 1, None] * np.cos(azimuths) + coef[:, 2, None] * np.sin(azimuths)
+    out = zp - coef[:, 0, None, None]
+    out -= tilt[:, :, None] * rr[:, None, :]
+    return out, coef
 
 
 def plain_level(profile, r_norm, annulus=ANNULUS):

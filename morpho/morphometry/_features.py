@@ -15,7 +15,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._geometry import fit_circle, fit_ellipse, harmonic_amplitudes, interp_last, nanquantile_last
+from ._geometry import (
+    fit_circle,
+    fit_ellipse,
+    harmonic_amplitudes,
+    interp_last,
+    nanquantile_last,
+    wquantile,
+)
 
 __all__ = ["azimuth_features", "profile_features", "crest_shape", "RIM_QUANTILE", "FLOOR_LEVEL"]
 
@@ -50,45 +57,47 @@ def crest_shape(zd, r_norm, crest_r, crest_z, radius_m):
     return curv, angle
 
 
-def azimuth_features(theta, crest_r_m, crest_z, curv, angle):
+def azimuth_features(theta, crest_r_m, crest_z, curv, angle, w=None):
     """Features from per-azimuth rim-crest quantities.
 
     Parameters
     ----------
-    theta : ndarray, shape (n_az,) or (b, n_az)
-        Azimuths (radians, counter-clockwise from east), broadcast over the crater axis.
-    crest_r_m : ndarray, shape (..., n_az)
+    theta : ndarray, shape (n_az,)
+        Azimuths (radians, counter-clockwise from east).
+    crest_r_m : ndarray, shape (n, n_az)
         Crest distance from the refined centre, metres (NaN = no crest).
-    crest_z : ndarray, shape (..., n_az)
+    crest_z : ndarray, shape (n, n_az)
         Crest elevation above the plain, metres.
-    curv, angle : ndarray, shape (..., n_az)
+    curv, angle : ndarray, shape (n, n_az)
         Output of :func:`crest_shape`.
+    w : ndarray, shape (b, n_az), optional
+        Bootstrap counts of each azimuth per replicate.
 
     Returns
     -------
-    dict of str -> ndarray, shape (...)
+    dict of str -> ndarray, shape (n,) or (n, b)
     """
-    x = crest_r_m * np.cos(theta)  # theta (n_az,) or (b, n_az): broadcast over craters
+    x = crest_r_m * np.cos(theta)
     y = crest_r_m * np.sin(theta)
-    _, _, radius = fit_circle(x, y)
-    major, minor, az = fit_ellipse(x, y)
-    amp = harmonic_amplitudes(theta, crest_r_m, 8)
+    _, _, radius = fit_circle(x, y, w)
+    major, minor, az = fit_ellipse(x, y, w)
+    amp = harmonic_amplitudes(theta, crest_r_m, 8, w)
     with np.errstate(invalid="ignore", divide="ignore"):
         rel = amp[..., 2:9] / amp[..., :1]
         power = (rel * rel).sum(-1)
-        zamp = harmonic_amplitudes(theta, crest_z, 1)
+        zamp = harmonic_amplitudes(theta, crest_z, 1, w)
         out = {
             "diameter_m": 2.0 * radius,
             "ellipse_major_m": major,
             "ellipse_minor_m": minor,
             "ellipse_azimuth_deg": az,
             "ellipticity": major / minor,
-            "rim_z": nanquantile_last(crest_z, RIM_QUANTILE),
+            "rim_z": wquantile(crest_z, RIM_QUANTILE, w),
             "outline_irregularity": np.sqrt(power),
             "polygonality_index": (rel[..., 1:] ** 2).max(-1) / power,
             "rim_height_asymmetry": zamp[..., 1] / zamp[..., 0],
-            "rim_curvature_norm": nanquantile_last(curv, 0.5),
-            "rim_crest_angle_deg": nanquantile_last(angle, 0.5),
+            "rim_curvature_norm": wquantile(curv, 0.5, w),
+            "rim_crest_angle_deg": wquantile(angle, 0.5, w),
         }
     for k in range(2, 9):
         out[f"rim_harmonic_{k}"] = rel[..., k - 2]

@@ -1,14 +1,16 @@
 """Batched least-squares geometry on crest points: circle, ellipse, azimuthal harmonics.
 
-Every function takes arrays with arbitrary leading batch dimensions (craters, bootstrap
-replicates) and a trailing azimuth axis; NaN or zero-weight points are ignored.
+Every function takes per-azimuth arrays of shape (n_craters, n_az) and optional weights of
+shape (n_replicates, n_az) (bootstrap counts); sums over azimuths become one matrix product
+per batch, so every replicate of every crater is fitted at once. NaN points are ignored.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["fit_circle", "fit_ellipse", "harmonic_amplitudes", "nanquantile_last", "interp_last"]
+__all__ = ["fit_circle", "fit_ellipse", "harmonic_amplitudes", "wquantile", "wsum",
+           "nanquantile_last", "interp_last"]
 
 
 def _solve_batched(a, b):
@@ -23,19 +25,64 @@ def _solve_batched(a, b):
     return np.where(ok[..., None], x, np.nan)
 
 
-def fit_circle(x, y, w=None):
-    """Kasa (1976) algebraic circle fit, batched.
+def wsum(products, w=None):
+    """Weighted sums over the azimuth axis.
 
     Parameters
     ----------
-    x, y : ndarray, shape (..., m)
-        Point coordinates; NaN points are ignored.
-    w : ndarray, shape (..., m), optional
-        Non-negative weights (e.g. bootstrap counts).
+    products : ndarray, shape (n, m, f)
+        Per-azimuth quantities (0 where invalid).
+    w : ndarray, shape (b, m), optional
+        Weights per replicate (bootstrap counts); ``None`` = plain sum.
 
     Returns
     -------
-    xc, yc, radius : ndarray, shape (...)
+    ndarray, shape (n, f) or (n, b, f)
+        One matrix product per batch: every bootstrap replicate costs one BLAS call.
+    """
+    if w is None:
+        return products.sum(1)
+    return np.matmul(products.transpose(0, 2, 1), w.T).transpose(0, 2, 1)
+
+
+def _valid_xy(x, y):
+    ok = np.isfinite(x) & np.isfinite(y)
+    return ok, np.where(ok, x, 0.0), np.where(ok, y, 0.0)
+
+
+def _n_used(ok, w):
+    """Number of distinct valid azimuths carrying weight, shape (n,) or (n, b)."""
+    return wsum(ok[..., None].astype(float), None if w is None else (w > 0).astype(float))[..., 0]
+
+
+def _centred(ok, x, y):
+    """Coordinates about the valid-point centroid (conditioning only; fits are covariant)."""
+    cnt = ok.sum(-1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mx = x.sum(-1) / cnt
+        my = y.sum(-1) / cnt
+    mx, my = np.where(cnt > 0, mx, 0.0), np.where(cnt > 0, my, 0.0)
+    return mx, my, np.where(ok, x - mx[:, None], 0.0), np.where(ok, y - my[:, None], 0.0)
+
+
+def _expand(a, like):
+    """Broadcast per-crater values (n,) against results of shape (n,) or (n, b)."""
+    return a if like.ndim == 1 else a[:, None]
+
+
+def fit_circle(x, y, w=None):
+    """Kasa (1976) algebraic circle fit of crest points, batched over craters (and replicates).
+
+    Parameters
+    ----------
+    x, y : ndarray, shape (n, m)
+        Point coordinates; NaN points are ignored.
+    w : ndarray, shape (b, m), optional
+        Non-negative weights per replicate (bootstrap counts of each azimuth).
+
+    Returns
+    -------
+    xc, yc, radius : ndarray, shape (n,) or (n, b)
         NaN where fewer than 3 usable points.
 
     References
@@ -43,30 +90,20 @@ def fit_circle(x, y, w=None):
     Kasa I. (1976) A circle fitting procedure and its error analysis. IEEE Trans. Instrum.
     Meas. 25(1):8-14, doi:10.1109/TIM.1976.6312298.
     """
-    ok = np.isfinite(x) & np.isfinite(y)
-    ww = ok.astype(float) if w is None else np.where(ok, w, 0.0)
-    x0 = np.where(ok, x, 0.0)
-    y0 = np.where(ok, y, 0.0)
-    # Centre the points first: keeps the normal equations well conditioned.
-    sw = ww.sum(-1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mx = (ww * x0).sum(-1) / sw
-        my = (ww * y0).sum(-1) / sw
-    u = np.where(ok, x0 - mx[..., None], 0.0)
-    v = np.where(ok, y0 - my[..., None], 0.0)
-    rhs = u * u + v * v
-    wu, wv = ww * u, ww * v
-    suu, suv, svv = (wu * u).sum(-1), (wu * v).sum(-1), (wv * v).sum(-1)
-    su, sv = wu.sum(-1), wv.sum(-1)
+    ok, x, y = _valid_xy(x, y)
+    mx, my, u, v = _centred(ok, x, y)
+    rho = u * u + v * v
+    one = ok.astype(float)
+    S = wsum(np.stack([one, u, v, u * u, u * v, v * v, rho, u * rho, v * rho], -1), w)
+    s1, su, sv, suu, suv, svv, sr, sur, svr = np.moveaxis(S, -1, 0)
     ata = np.stack([np.stack([suu, suv, su], -1), np.stack([suv, svv, sv], -1),
-                    np.stack([su, sv, sw], -1)], -2)
-    atb = np.stack([(wu * rhs).sum(-1), (wv * rhs).sum(-1), (ww * rhs).sum(-1)], -1)
-    sol = _solve_batched(ata, atb)
+                    np.stack([su, sv, s1], -1)], -2)
+    sol = _solve_batched(ata, np.stack([sur, svr, sr], -1))
     a, b, c = sol[..., 0] / 2.0, sol[..., 1] / 2.0, sol[..., 2]
     with np.errstate(invalid="ignore"):
         radius = np.sqrt(c + a * a + b * b)
-    enough = (ww > 0).sum(-1) >= 3
-    return (np.where(enough, mx + a, np.nan), np.where(enough, my + b, np.nan),
+    enough = _n_used(ok, w) >= 3
+    return (np.where(enough, _expand(mx, a) + a, np.nan), np.where(enough, _expand(my, b) + b, np.nan),
             np.where(enough, radius, np.nan))
 
 
@@ -75,16 +112,16 @@ def fit_ellipse(x, y, w=None):
 
     Parameters
     ----------
-    x, y : ndarray, shape (..., m)
+    x, y : ndarray, shape (n, m)
         Points (metres); NaN ignored. ``y`` points up (north), ``x`` right (east).
-    w : ndarray, shape (..., m), optional
-        Non-negative weights.
+    w : ndarray, shape (b, m), optional
+        Non-negative weights per replicate.
 
     Returns
     -------
-    major, minor : ndarray, shape (...)
+    major, minor : ndarray, shape (n,) or (n, b)
         Full axis lengths (same unit as ``x``), ``major >= minor``.
-    azimuth_deg : ndarray, shape (...)
+    azimuth_deg : ndarray, shape (n,) or (n, b)
         Direction of the major axis, degrees clockwise from north (+y), in [0, 180).
 
     References
@@ -92,21 +129,21 @@ def fit_ellipse(x, y, w=None):
     Fitzgibbon A., Pilu M., Fisher R.B. (1999) Direct least square fitting of ellipses. IEEE
     TPAMI 21(5):476-480 (the unconstrained general-conic variant is used here).
     """
-    ok = np.isfinite(x) & np.isfinite(y)
-    ww = ok.astype(float) if w is None else np.where(ok, w, 0.0)
-    sw = ww.sum(-1)
+    ok, x, y = _valid_xy(x, y)
+    _, _, u, v = _centred(ok, x, y)
+    cnt = ok.sum(-1)
     with np.errstate(invalid="ignore", divide="ignore"):
-        mx = (ww * np.where(ok, x, 0.0)).sum(-1) / sw
-        my = (ww * np.where(ok, y, 0.0)).sum(-1) / sw
-        u = np.where(ok, x - mx[..., None], 0.0)
-        v = np.where(ok, y - my[..., None], 0.0)
-        s = np.sqrt((ww * (u * u + v * v)).sum(-1) / sw)
-    s = np.where(np.isfinite(s) & (s > 0), s, 1.0)[..., None]
-    u, v = u / s, v / s
-    cols = np.stack([u * u, u * v, v * v, u, v], -1)
-    ata = np.einsum("...mi,...mj,...m->...ij", cols, cols, ww)
-    atb = np.einsum("...mi,...m->...i", cols, ww)
-    A, B, C, D, E = np.moveaxis(_solve_batched(ata, atb), -1, 0)
+        s = np.sqrt((u * u + v * v).sum(-1) / cnt)
+    s = np.where(np.isfinite(s) & (s > 0), s, 1.0)
+    u, v = u / s[:, None], v / s[:, None]
+    cols = [u * u, u * v, v * v, u, v]
+    pairs = [(i, j) for i in range(5) for j in range(i, 5)]
+    S = wsum(np.stack([cols[i] * cols[j] for i, j in pairs] + cols, -1), w)
+    ata = np.empty(S.shape[:-1] + (5, 5))
+    for k, (i, j) in enumerate(pairs):
+        ata[..., i, j] = ata[..., j, i] = S[..., k]
+    A, B, C, D, E = np.moveaxis(_solve_batched(ata, S[..., len(pairs):]), -1, 0)
+    s = _expand(s, A)
     with np.errstate(invalid="ignore", divide="ignore"):
         det = 4 * A * C - B * B
         # Centre of the conic and the constant term after moving the origin there.
@@ -115,49 +152,83 @@ def fit_ellipse(x, y, w=None):
         k = 1.0 + (A * u0 * u0 + B * u0 * v0 + C * v0 * v0)
         tr, diff = A + C, np.sqrt((A - C) ** 2 + B * B)
         l1, l2 = (tr - diff) / 2.0, (tr + diff) / 2.0  # l1 <= l2: l1 along the major axis
-        major = 2.0 * np.sqrt(k / l1) * s[..., 0]
-        minor = 2.0 * np.sqrt(k / l2) * s[..., 0]
-        theta = 0.5 * np.arctan2(B, A - C)  # angle (from +u) of the eigenvector of l2... see below
-    # arctan2 gives the axis of the larger eigenvalue (minor axis) rotated by 90 degrees from the major.
-    major_dir = theta + np.pi / 2.0
+        major = 2.0 * np.sqrt(k / l1) * s
+        minor = 2.0 * np.sqrt(k / l2) * s
+    # 0.5 atan2(B, A - C) is the direction (from +u) of the larger eigenvalue, i.e. the
+    # minor axis; the major axis is 90 degrees on. Azimuth: clockwise from +v (north).
+    major_dir = 0.5 * np.arctan2(B, A - C) + np.pi / 2.0
     az = np.degrees(np.pi / 2.0 - major_dir) % 180.0
-    bad = ~(det > 0) | ~(k > 0) | ((ww > 0).sum(-1) < 5)
-    nan = np.nan
-    return (np.where(bad, nan, major), np.where(bad, nan, minor), np.where(bad, nan, az))
+    bad = ~(det > 0) | ~(k > 0) | (_n_used(ok, w) < 5)
+    return (np.where(bad, np.nan, major), np.where(bad, np.nan, minor), np.where(bad, np.nan, az))
 
 
-def harmonic_amplitudes(theta, values, kmax):
+def harmonic_amplitudes(theta, values, kmax, w=None):
     """Amplitudes of azimuthal harmonics 0..kmax of ``values(theta)`` (DFT over valid samples).
 
     Parameters
     ----------
-    theta : ndarray, shape (m,) or (b, m)
-        Azimuths in radians; broadcast against the trailing axes of ``values`` (the same
-        azimuth draw serves every crater, so the trigonometric table is built once).
-    values : ndarray, shape (..., m) or (..., b, m)
+    theta : ndarray, shape (m,)
+        Azimuths in radians.
+    values : ndarray, shape (n, m)
         Samples; NaN ignored.
     kmax : int
         Highest harmonic.
+    w : ndarray, shape (b, m), optional
+        Weights per replicate.
 
     Returns
     -------
-    ndarray, shape (..., kmax + 1)
+    ndarray, shape (n, kmax + 1) or (n, b, kmax + 1)
         ``amp[..., 0]`` is the mean; ``amp[..., k]`` the amplitude of ``cos(k theta - phase)``.
     """
     ok = np.isfinite(values)
-    sw = ok.sum(-1)
-    k = np.arange(kmax + 1)
-    ang = np.asarray(theta)[..., None] * k  # (..., m, k), no crater axis
+    val = np.where(ok, values, 0.0)
+    one = ok.astype(float)
+    k = np.arange(1, kmax + 1)
+    cos, sin = np.cos(np.outer(theta, k)), np.sin(np.outer(theta, k))  # (m, k)
+    parts = [one[..., None], val[..., None], val[..., None] * cos, val[..., None] * sin,
+             one[..., None] * cos, one[..., None] * sin]
+    S = wsum(np.concatenate(parts, -1), w)
+    s1, sv = S[..., 0], S[..., 1]
+    svc, svs = S[..., 2 : 2 + kmax], S[..., 2 + kmax : 2 + 2 * kmax]
+    sc, ss = S[..., 2 + 2 * kmax : 2 + 3 * kmax], S[..., 2 + 3 * kmax :]
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(ok, values, 0.0).sum(-1) / sw
+        mean = sv / s1
         # Removing the mean first stops it leaking into k >= 1 when the azimuths are
         # unevenly represented (gaps, bootstrap resamples).
-        val = np.where(ok, values - mean[..., None], 0.0)[..., None, :]
-        c = np.matmul(val, np.cos(ang))[..., 0, :] / sw[..., None]
-        s = np.matmul(val, np.sin(ang))[..., 0, :] / sw[..., None]
-    amp = 2.0 * np.hypot(c, s)
-    amp[..., 0] = mean
-    return amp
+        c = (svc - mean[..., None] * sc) / s1[..., None]
+        s = (svs - mean[..., None] * ss) / s1[..., None]
+    return np.concatenate([mean[..., None], 2.0 * np.hypot(c, s)], -1)
+
+
+def wquantile(values, q, w=None):
+    """Weighted quantile (inverted empirical CDF) along the azimuth axis, ignoring NaN.
+
+    Parameters
+    ----------
+    values : ndarray, shape (n, m)
+    q : float
+        In [0, 1].
+    w : ndarray, shape (b, m), optional
+        Weights per replicate; ``None`` = all ones.
+
+    Returns
+    -------
+    ndarray, shape (n,) or (n, b)
+    """
+    order = np.argsort(np.where(np.isfinite(values), values, np.inf), axis=-1)
+    srt = np.take_along_axis(values, order, -1)
+    ok = np.isfinite(srt)
+    if w is None:
+        ws = ok.astype(float)
+    else:
+        ws = np.where(ok[:, None, :], w[:, order].transpose(1, 0, 2), 0.0)  # (n, b, m)
+        srt = srt[:, None, :]
+    cum = np.cumsum(ws, -1)
+    total = cum[..., -1:]
+    idx = np.argmax(cum >= q * total - 1e-9, axis=-1)
+    out = np.take_along_axis(np.broadcast_to(srt, ws.shape), idx[..., None], -1)[..., 0]
+    return np.where(total[..., 0] > 0, out, np.nan)
 
 
 def nanquantile_last(a, q):

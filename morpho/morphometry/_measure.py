@@ -28,6 +28,8 @@ FEATURES_WITH_ERROR = (
     "rim_flank_decay_exponent", "outline_irregularity", "polygonality_index",
     "rim_height_asymmetry",
 )
+#: Refinement passes before measuring (the measurement itself is a third crest pass).
+REFINE_PASSES = 2
 #: Crest search window around the refined radius (crater radii).
 FINAL_WINDOW = (0.7, 1.3)
 #: Below this many pixels across, a crater is not measured (Robbins et al. 2014 Icarus 234
@@ -63,23 +65,22 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     errs = {}
     boot_prof = None
     if n_boot > 1:
-        # Resampling azimuths with replacement: the same index draw for every crater.
+        # Resampling azimuths with replacement = integer weights per azimuth; the same
+        # draw serves every crater, and every weighted sum is one matrix product.
         counts = np.zeros((n_boot, n_azimuths))
         np.add.at(counts, (np.arange(n_boot)[:, None], boot_idx), 1.0)
         with np.errstate(invalid="ignore", divide="ignore"):
             boot_prof = (np.matmul(zf.transpose(0, 2, 1), counts.T)
                          / np.matmul(valid.transpose(0, 2, 1).astype(float), counts.T)).transpose(0, 2, 1)
-        pick = (slice(None), boot_idx)
-        azb = azimuth_features(theta[boot_idx], crest_r_m[pick], crest.z[pick], curv[pick],
-                               angle[pick])
+        azb = azimuth_features(theta, crest_r_m, crest.z, curv, angle, counts)
         boot = _combine(azb, profile_features(boot_prof, r_norm, radius_m[:, None], azb["rim_z"]))
-        with np.errstate(invalid="ignore"):
-            for name in FEATURES_WITH_ERROR:
-                b = np.asarray(boot[name], dtype=float)
-                nb = np.isfinite(b).sum(1)
-                mu = np.nanmean(np.where(nb[:, None] > 0, b, 0.0), axis=1)
-                var = np.nansum((b - mu[:, None]) ** 2, axis=1) / np.maximum(nb - 1, 1)
-                errs[f"{name}_err"] = np.where(nb > 1, np.sqrt(var), np.nan)
+        for name in FEATURES_WITH_ERROR:
+            b = np.asarray(boot[name], dtype=float)
+            nb = np.isfinite(b).sum(1)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                mu = np.where(np.isfinite(b), b, 0.0).sum(1) / nb
+                var = np.where(np.isfinite(b), (b - mu[:, None]) ** 2, 0.0).sum(1) / (nb - 1)
+            errs[f"{name}_err"] = np.where(nb > 1, np.sqrt(var), np.nan)
     out = pd.DataFrame({"row": rows, "col": cols, "radius_px": rad})
     for name, val in point.items():
         out[name] = val
@@ -156,7 +157,7 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
     r0, c0, rad0 = as_centres(rows, cols, radius_px)
     spacing = as_spacing(spacing_m, r0.size)
     if refine:
-        ref = refine_craters(z, spacing, r0, c0, rad0, n_azimuths=n_azimuths)
+        ref = refine_craters(z, spacing, r0, c0, rad0, n_azimuths=n_azimuths, n_iter=REFINE_PASSES)
         r0, c0, rad0 = (ref[k].to_numpy() for k in ("row", "col", "radius_px"))
         status = ref["reason"].to_numpy(dtype=object)
     else:

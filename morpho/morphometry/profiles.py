@@ -113,21 +113,21 @@ def sample_polar(z, rows, cols, radius_px, azimuths, r_norm, *, order=1):
     if n == 0:
         return np.empty((0, azimuths.size, r_norm.size))
     rr = radius_px[:, None, None] * r_norm[None, None, :]
+    coords = np.empty((2, n, azimuths.size, r_norm.size))
     # Row index grows downwards (south on a north-up grid): +azimuth turns east -> north.
-    sample_r = rows[:, None, None] - rr * np.sin(azimuths)[None, :, None]
-    sample_c = cols[:, None, None] + rr * np.cos(azimuths)[None, :, None]
-
+    np.multiply(rr, -np.sin(azimuths)[None, :, None], out=coords[0])
+    coords[0] += rows[:, None, None]
+    np.multiply(rr, np.cos(azimuths)[None, :, None], out=coords[1])
+    coords[1] += cols[:, None, None]
+    coords = coords.reshape(2, -1)
     nan_mask = ~np.isfinite(z)
-    filled = np.where(nan_mask, 0.0, z)
-    coords = np.stack([sample_r.ravel(), sample_c.ravel()])
+    has_nan = bool(nan_mask.any())
+    filled = np.where(nan_mask, 0.0, z) if has_nan else z
+    # mode="constant" with cval=NaN: samples beyond the outer pixel centres come back NaN.
     vals = ndimage.map_coordinates(filled, coords, order=order, mode="constant", cval=np.nan)
-    # Any NaN neighbour contaminates the interpolated value: flag it rather than invent data.
-    if nan_mask.any():
+    if has_nan:
+        # Any NaN neighbour contaminates the interpolated value: flag it, never invent data.
         bad = ndimage.map_coordinates(nan_mask.astype(np.float32), coords, order=1,
                                       mode="constant", cval=1.0)
-    else:  # the second interpolation pass is only needed when there is nodata to track
-        bad = np.zeros(coords.shape[1], dtype=np.float32)
-    h, w = z.shape
-    outside = (coords[0] < -0.5) | (coords[0] > h - 0.5) | (coords[1] < -0.5) | (coords[1] > w - 0.5)
-    vals = np.where((bad > 1e-6) | outside, np.nan, vals)
+        vals[bad > 1e-6] = np.nan
     return vals.reshape(n, azimuths.size, r_norm.size)
