@@ -20,7 +20,6 @@ from ._geometry import (
     fit_ellipse,
     harmonic_amplitudes,
     interp_last,
-    nanquantile_last,
     wquantile,
 )
 
