@@ -185,3 +185,23 @@ def test_relief_of_a_geographic_dem_is_drawn_in_its_own_degrees(tmp_path):
     assert abs(np.nanmin(y) - bounds.bottom) < 3 * px and abs(np.nanmax(y) - bounds.top) < 3 * px
     # a cone shades differently on each flank
     assert np.ptp(relief["shade"].compressed()) > 0.1
+
+
+def test_map_colours_follow_verdict_and_p_impact():
+    """Verdict colours match the QGIS style; unscored (NaN) p_impact stays visible in grey."""
+    from matplotlib import colormaps
+
+    from morpho.outputs._figmap import map_figure
+    from morpho.outputs._style import VERDICT_COLOURS
+
+    craters = sample_craters(30, seed=1)
+    craters.loc[:4, "p_impact"] = np.nan
+    edges = map_figure(craters, colour_by="p_impact").axes[0].collections[0].get_edgecolor()
+    np.testing.assert_allclose(edges[:5, :3], 0.55)
+    # p_impact = 0 maps to the first viridis colour (matplotlib's own table as reference)
+    craters.loc[5, "p_impact"] = 0.0
+    edges = map_figure(craters, colour_by="p_impact").axes[0].collections[0].get_edgecolor()
+    np.testing.assert_allclose(edges[5, :3], colormaps["viridis"](0.0)[:3], atol=1e-3)
+    edges = map_figure(craters, colour_by="verdict").axes[0].collections[0].get_edgecolor()
+    for verdict, rgba in zip(craters["verdict"], edges, strict=True):
+        np.testing.assert_allclose(rgba[:3] * 255, VERDICT_COLOURS[verdict], atol=0.5)

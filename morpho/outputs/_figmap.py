@@ -22,7 +22,9 @@ __all__ = ["load_relief", "map_figure", "P_IMPACT_CMAP"]
 
 #: p_impact 0 (electrode-spot-like) to 1 (impact-like): viridis (perceptually uniform,
 #: colour-blind safe) without its palest tenth, which vanishes on white paper.
-P_IMPACT_CMAP = ListedColormap(colormaps["viridis"](np.linspace(0.0, 0.88, 256)), name="p_impact")
+#: Unscored craters (NaN) stay visible, in grey.
+P_IMPACT_CMAP = ListedColormap(colormaps["viridis"](np.linspace(0.0, 0.88, 256)),
+                               name="p_impact").with_extremes(bad="0.55")
 _MAX_RELIEF_PX = 900
 
 

@@ -34,7 +34,7 @@ h1{font-size:1.5em;margin-bottom:.2em}h2{font-size:1.2em;border-bottom:1px solid
 table{border-collapse:collapse;font-size:.85em;margin:.5em 0}td,th{border:1px solid #ccc;padding:.25em .5em;
 vertical-align:top;text-align:left}th{background:#f0f0f0}td.num{text-align:right;font-variant-numeric:tabular-nums}
 .pair{display:flex;flex-wrap:wrap;gap:1em}.pair figure{flex:1 1 480px}
-pre{white-space:pre-wrap;word-break:break-all;font-size:.8em;margin:0}
+pre{white-space:pre-wrap;word-break:break-all;font-size:.95em;margin:0}
 """
 _URL = re.compile(r"\b(?:https?|ftp)://", re.IGNORECASE)
 
