@@ -251,12 +251,15 @@ def profile_features(m, r_norm, radius_m, rim_z):
         fit_zone = (r_norm >= 0.3) & (r_norm <= 0.9)
         shape_n = _loglog_slope(r_norm, m - floor_z[..., None], fit_zone)
 
-        # Cavity volume below the rim level, trapezoid in r (area element 2 pi r dr).
-        w = r_norm * dr
-        w = np.where(r_norm <= 1.0, w, 0.0)
-        w[..., np.searchsorted(r_norm, 1.0)] *= 0.5
-        gap = np.clip(rim_z[..., None] - m, 0.0, None)
-        volume = 2.0 * np.pi * np.nansum(gap * w, -1) * radius_m**2
+        # Cavity volume below the rim level: trapezoid of 2 pi r (rim - z) dr from 0 to
+        # exactly R (the last partial interval closed with the value interpolated at R).
+        j = int(np.searchsorted(r_norm, 1.0, side="right")) - 1  # last sample <= R
+        g = r_norm * np.clip(rim_z[..., None] - m, 0.0, None)
+        g = np.where(np.isfinite(g), g, 0.0)
+        inner = dr * (g[..., : j + 1].sum(-1) - 0.5 * g[..., j])
+        t = (1.0 - r_norm[j]) / dr
+        g_r = g[..., j] + t * (g[..., j + 1] - g[..., j])
+        volume = 2.0 * np.pi * (inner + 0.5 * (1.0 - r_norm[j]) * (g[..., j] + g_r)) * radius_m**2
 
         # Rim flank: m = h (r/R)^-b between 1.1 and 1.5 R (above the annulus plane).
         flank = (r_norm >= 1.1) & (r_norm <= 1.5)

@@ -126,8 +126,10 @@ def sharpen_crest(zd, r_norm, crest, radius_px):
         disc = np.sqrt(A1 * A1 - 4 * A2 * A0)
         roots = np.stack([(-A1 + disc) / (2 * A2), (-A1 - disc) / (2 * A2), -A0 / A1])
         roots = np.where(np.isfinite(roots), roots, np.inf)
+        # The linear root stands in only when the curvature difference vanishes.
         lin = np.abs(A2) < 1e-9 * (np.abs(A1) + 1e-300)
         roots[:2] = np.where(lin, np.inf, roots[:2])
+        roots[2] = np.where(lin, roots[2], np.inf)
         t = np.take_along_axis(roots, np.argmin(np.abs(roots), 0)[None], 0)[0]
         ok = np.isfinite(t) & (np.abs(t) < a)
         # Height where the curves meet restores the crest the blur shaved off. Bounded to
