@@ -90,14 +90,17 @@ def test_invariance_to_offset_and_regional_tilt():
 
 
 def test_half_crater_at_edge_kept_with_partial_coverage():
-    radius = 20.0
-    z = bowl((128, 128), 64.0, 6.0, radius)  # centre 6 px from the left edge
+    radius, c0 = 20.0, 10.0
+    z = bowl((128, 128), 64.0, c0, radius)  # centre 10 px from the left edge
     df = detect_craters(z, SPACING)
-    hit, dist = nearest(df, 64.0, 6.0)
+    hit, dist = nearest(df, 64.0, c0)
     assert dist < 2.0
     assert hit.radius_px == pytest.approx(radius, rel=0.05)
-    # About 60 % of the rim circle lies on the grid: acos(-6/20) / pi = 0.60 (geometry).
-    assert 0.5 <= hit.rim_coverage <= 0.75
+    # rim_coverage = share of azimuths whose profile is on valid data out to 1.2 R (dictionary);
+    # bilinear samples need both neighbours, so data end at col 0 and the cut azimuths are
+    # |theta| < acos(10 / 24) (geometry).
+    expected = 1.0 - np.arccos(c0 / (1.2 * radius)) / np.pi
+    assert hit.rim_coverage == pytest.approx(expected, abs=0.05)
 
 
 def test_nodata_hole_not_filled_in():

@@ -38,7 +38,7 @@ _K = 2.0 ** (1.0 / _STEPS)
 # changes sign there, so rho* is the radius the kernel is tuned to.
 _C = float(np.sqrt(8.0 * np.log(_K) * _K**2 / (_K**2 - 1.0)))
 # Empirical ratio of rim radius to rho* at the response maximum, measured on paraboloid bowls.
-_RADIUS_CAL = 0.79
+_RADIUS_CAL = 0.95
 
 
 def _ideal_response() -> float:
@@ -108,36 +108,68 @@ def prepare_surface(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return detr, valid
 
 
+def _smooth_coarse(a: np.ndarray, sigma: float) -> np.ndarray:
+    """Gaussian blur with a wide ``sigma`` computed on a subsampled grid and interpolated back."""
+    step = max(1, int(sigma / 4.0))
+    if step == 1:
+        return ndimage.gaussian_filter(a, sigma, truncate=3.0)
+    h, w = a.shape
+    coarse = ndimage.gaussian_filter(a[::step, ::step], sigma / step, truncate=3.0)
+    # Coarse sample i sits at full-resolution index i * step.
+    rr = np.minimum(np.arange(h, dtype=np.float32) / step, coarse.shape[0] - 1)
+    cc = np.minimum(np.arange(w, dtype=np.float32) / step, coarse.shape[1] - 1)
+    r0, c0 = rr.astype(np.intp), cc.astype(np.intp)
+    r1, c1 = np.minimum(r0 + 1, coarse.shape[0] - 1), np.minimum(c0 + 1, coarse.shape[1] - 1)
+    fr, fc = (rr - r0)[:, None], (cc - c0)[None, :]
+    top = coarse[r0][:, c0] * (1 - fc) + coarse[r0][:, c1] * fc
+    bot = coarse[r1][:, c0] * (1 - fc) + coarse[r1][:, c1] * fc
+    return top * (1 - fr) + bot * fr
+
+
 def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
-    """Scale-normalised radial-symmetry response, shape (len(radii), H, W), and the smoothed level."""
-    sm = ndimage.gaussian_filter(level, 1.0)
+    """Scale-normalised radial-symmetry response, shape (len(radii), H, W), and the smoothed level.
+
+    Computed in float32: the response is a ratio of smoothed quantities, and single precision
+    halves the memory traffic of the Gaussian passes.
+    """
+    sm = ndimage.gaussian_filter(level.astype(np.float32), 1.0)
     gy, gx = np.gradient(sm)
     mag = np.hypot(gx, gy)
-    vf = valid.astype(np.float64)
+    all_valid = bool(valid.all())
+    vf = valid.astype(np.float32)
     s_rms = 2.0 * float(radii[-1])
-    num = ndimage.gaussian_filter(mag * mag * vf, s_rms, truncate=3.0)
-    den = ndimage.gaussian_filter(vf, s_rms, truncate=3.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        rms = np.sqrt(num / np.maximum(den, 1e-9))
-    floor = 1e-9 * (float(np.nanmax(rms)) + 1e-300)
+    if all_valid:
+        rms = np.sqrt(np.maximum(_smooth_coarse(mag * mag, s_rms), 0.0))
+    else:
+        num = _smooth_coarse(mag * mag * vf, s_rms)
+        den = _smooth_coarse(vf, s_rms)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rms = np.sqrt(np.maximum(num, 0.0) / np.maximum(den, 1e-6))
+    floor = np.float32(1e-6 * (float(np.nanmax(rms)) + 1e-30))
     # Unit direction where the gradient is at least the local RMS; weaker gradients (noise on a
     # smooth floor) are damped in proportion, so they cannot vote as strongly as crater walls.
     norm = np.maximum(mag, np.maximum(rms, floor))
-    ux = np.where(valid, gx / norm, 0.0)
-    uy = np.where(valid, gy / norm, 0.0)
+    ux = gx / norm
+    uy = gy / norm
+    if not all_valid:
+        ux *= vf
+        uy *= vf
     div = np.gradient(ux, axis=1) + np.gradient(uy, axis=0)
 
     sig = radii / _C
-    out = np.empty((radii.size,) + level.shape)
+    out = np.empty((radii.size,) + level.shape, dtype=np.float32)
     prev = ndimage.gaussian_filter(div, sig[0], truncate=3.0)
     s_prev = sig[0]
     for j, s in enumerate(sig):
         s2 = s * _K
         nxt = ndimage.gaussian_filter(prev, np.sqrt(s2**2 - s_prev**2), truncate=3.0)
-        cov = ndimage.gaussian_filter(vf, radii[j], truncate=2.0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            resp = (prev - nxt) * s / _IDEAL / cov
-        out[j] = np.where(cov > 0.35, resp, 0.0)
+        np.subtract(prev, nxt, out=out[j])
+        out[j] *= np.float32(s / _IDEAL)
+        if not all_valid:
+            # Share of the kernel on valid data: an edge crater keeps its full score.
+            cov = ndimage.gaussian_filter(vf, radii[j], truncate=2.0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out[j] = np.where(cov > 0.35, out[j] / cov, 0.0)
         prev, s_prev = nxt, s2
         # sig[j+1] == s2 by construction, so ``prev`` is already G(sig[j+1]) * div.
     return out, sm

@@ -49,8 +49,8 @@ def detect_craters(
     max_diameter_px: float | None = None,
     min_confidence: float = 0.4,
     min_depth_ratio: float = 0.02,
-    min_rim_coverage: float = 0.5,
-    n_azimuths: int = 36,
+    min_rim_coverage: float = 0.6,
+    n_azimuths: int = 32,
 ) -> pd.DataFrame:
     """Find craters in a DEM tile.
 

@@ -25,11 +25,14 @@ import numpy as np
 
 from morpho.morphometry.profiles import sample_radial_profiles
 
+from ._merge import suppress_duplicates
+
 __all__ = ["Verified", "verify_candidates"]
 
-_N_RADII = 61  # 0 .. 2 radii in steps of 1/30
+_N_RADII = 49  # 0 .. 2 radii in steps of 1/24
 _R_MAX = 2.0
 _WIN = (0.5, 1.5)  # rim-crest search window, radii
+_COVER_MAX = 1.2  # rim coverage counts valid profiles out to this radius
 _RING = (1.3, 2.0)  # surroundings for the regional plane, radii
 _SUBSAMPLE = 0.0
 _CHUNK = 1500
@@ -102,7 +105,8 @@ def _crests(d, r_norm):
     """Per-azimuth rim crest: normalised radius, height, crest-found and window-valid flags."""
     i0, i1 = np.searchsorted(r_norm, _WIN[0]), np.searchsorted(r_norm, _WIN[1], side="right")
     win = d[:, :, i0:i1]
-    finite = np.isfinite(win).all(axis=2)
+    # Coverage: the rim zone (0.5 .. 1.2 radii) on valid data (dictionary: rim_coverage).
+    finite = np.isfinite(d[:, :, i0:np.searchsorted(r_norm, _COVER_MAX, side="right")]).all(axis=2)
     idx = np.argmax(np.where(np.isfinite(win), win, -np.inf), axis=2)
     height = np.take_along_axis(win, idx[..., None], axis=2)[..., 0]
     # Parabolic sub-sample peak position where both neighbours exist.
@@ -115,7 +119,8 @@ def _crests(d, r_norm):
     shift = np.nan_to_num(np.clip(shift, -0.5, 0.5)) * _SUBSAMPLE
     step = r_norm[1] - r_norm[0]
     rho = r_norm[i0] + (idx + shift) * step
-    return rho, height, inner & finite, finite
+    found = inner & np.isfinite(height) & np.isfinite(lo) & np.isfinite(hi)
+    return rho, height, found & finite, finite
 
 
 def _circle_fit(dr, dc, w):
@@ -195,7 +200,7 @@ def verify_candidates(
     spacing_m: float,
     *,
     min_depth_ratio: float = 0.02,
-    n_azimuths: int = 36,
+    n_azimuths: int = 32,
 ) -> Verified:
     """Refine centre and rim-crest radius of each candidate and rate it.
 
@@ -228,8 +233,17 @@ def verify_candidates(
     cols = np.asarray(cols, dtype=np.float64)
     rad = np.asarray(radius_px, dtype=np.float64)
     # Chunks bound the memory of the (n, azimuths, radii) profile stacks.
-    parts = [_verify_chunk(z, rows[i:i + _CHUNK], cols[i:i + _CHUNK], rad[i:i + _CHUNK],
-                           spacing_m, min_depth_ratio, n_azimuths)
+    chunks = range(0, max(rows.size, 1), _CHUNK)
+    parts = [_screen(z, rows[i:i + _CHUNK], cols[i:i + _CHUNK], rad[i:i + _CHUNK], spacing_m,
+                     min_depth_ratio) for i in chunks]
+    rows, cols, rad, rank = (np.concatenate(x) for x in zip(*parts, strict=True))
+    # Candidates from neighbouring scales and pixels converge on the same rim after one
+    # refit: merge them before the expensive passes.
+    keep = suppress_duplicates(rows, cols, rad, rank, max_offset=0.25, max_ratio=1.25)
+    keep = keep[rank[keep] > 0]
+    rows, cols, rad = rows[keep], cols[keep], rad[keep]
+    parts = [_refine_and_rate(z, rows[i:i + _CHUNK], cols[i:i + _CHUNK], rad[i:i + _CHUNK],
+                              spacing_m, min_depth_ratio, n_azimuths)
              for i in range(0, max(rows.size, 1), _CHUNK)]
     keys = ("rows", "cols", "radius_px", "confidence", "rim_coverage", "depth")
     merged = {k: np.concatenate([getattr(p, k) for p in parts]) for k in keys}
@@ -238,25 +252,39 @@ def verify_candidates(
     return Verified(**merged, terms=terms)
 
 
-def _verify_chunk(z, rows, cols, rad, spacing_m, min_depth_ratio, n_azimuths):
-    """Coarse screening, two refinement passes and the final rating of one chunk."""
+def _screen(z, rows, cols, rad, spacing_m, min_depth_ratio):
+    """Coarse pass (16 azimuths): one refit and a screening rank (0 = rejected)."""
+    if rows.size == 0:
+        e = np.empty(0)
+        return e, e, e, e
+    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, 16, 33)
+    _, _, _, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
+    # Screening on what an off-centre first guess cannot spoil: depth/diameter and
+    # depth/roughness, with a loose roundness bound (a 20 % centre offset spreads crest radii by
+    # ~13 %). A final confidence of 0.4 needs at least these values.
+    ratio = np.nan_to_num(terms["depth_ratio"])
+    snr = np.nan_to_num(terms["snr"], posinf=1e6)
+    alive = (ratio >= 0.75 * min_depth_ratio) & (snr >= 2.5)
+    alive &= np.nan_to_num(terms["spread"], nan=1.0) < 0.2
+    rank = np.minimum(ratio / min_depth_ratio, 10.0) * (1.0 - np.exp(-snr / 5.0))
+    rows, cols, rad = _refit(rows, cols, rad, az, rho, good, 16)
+    return rows, cols, rad, np.where(alive, rank + 1e-6, 0.0)
+
+
+def _refine_and_rate(z, rows, cols, rad, spacing_m, min_depth_ratio, n_azimuths):
+    """One refinement pass, then the final rating of those still plausible."""
     e = np.empty(0)
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})
-    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, 16, 33)
-    _, _, _, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
-    # Screening on what an off-centre first guess cannot spoil: depth/diameter, depth/roughness,
-    # and a loose roundness bound (a 20 % centre offset spreads crest radii by ~13 %).
-    alive = (np.nan_to_num(terms["depth_ratio"]) >= 0.5 * min_depth_ratio)
-    alive &= np.nan_to_num(terms["snr"], posinf=1e6) >= 1.5
-    alive &= np.nan_to_num(terms["spread"], nan=1.0) < 0.2
-    rows, cols, rad = _refit(rows, cols, rad, az, rho, good, 16)
-    rows, cols, rad = rows[alive], cols[alive], rad[alive]
+    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
+    conf, *_ = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
+    rows, cols, rad = _refit(rows, cols, rad, az, rho, good, n_azimuths)
+    # A rim that rates below 0.15 from a centre within a few % of its own would not reach a
+    # useful confidence after one more step: stop spending profiles on it.
+    live = conf >= 0.15
+    rows, cols, rad = rows[live], cols[live], rad[live]
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})
-    for _ in range(1):
-        az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
-        rows, cols, rad = _refit(rows, cols, rad, az, rho, good, n_azimuths)
     az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
     conf, coverage, depth, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m,
                                          min_depth_ratio)
