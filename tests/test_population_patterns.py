@@ -61,7 +61,7 @@ def test_chain_of_collinear_craters_is_one_chain_with_its_azimuth():
     n_expected = sum(min(j, 3) * min(8 - j, 3) for j in range(9))
     assert n_expected == 0 + 3 + 6 + 9 + 9 + 9 + 6 + 3 + 0
     assert len(tri) == n_expected
-    chain_id, chains = extract_chains(x, y, tri)
+    chain_id, chains = extract_chains(x, y, np.full(9, 100.0), tri)
     assert np.all(chain_id == 0) and len(chains) == 1
     assert chains[0]["n_craters"] == 9
     assert chains[0]["azimuth_deg"] == pytest.approx(30.0, abs=1e-6)
@@ -113,7 +113,7 @@ def test_to_local_metric_distances_are_geodesic_from_centre():
 def test_chain_geometry_is_in_input_coordinates():
     x = np.linspace(0, 800, 6)
     y = 2 * x + 10
-    chain_id, chains = extract_chains(x, y, aligned_triplets(x, y, np.full(6, 120.0)))
+    chain_id, chains = extract_chains(x, y, np.full(6, 120.0), aligned_triplets(x, y, np.full(6, 120.0)))
     line = chains[0]["geometry"]
     assert isinstance(line, shapely.LineString)
     assert shapely.Point(400, 810).distance(line) < 1e-6

@@ -34,6 +34,8 @@ SIZE_RATIO = 2.0
 #: must lie within a quarter diameter of the line through the outer two, so the line
 #: crosses the middle crater well inside its rim.
 WIDTH_FACTOR = 0.5
+#: Largest change of direction (degrees) between two triplets that continue one chain.
+MAX_BEND = 10.0
 #: Fewest craters in a reported chain.
 MIN_CHAIN = 5
 
@@ -112,35 +114,82 @@ def aligned_triplets(x_m, y_m, diameter_m, *, min_link_m: float = 0.0) -> np.nda
     return tri.astype(np.int64)
 
 
-def _triplet_components(tri):
-    """Component label per triplet; triplets sharing a pair of craters continue each other."""
+def _triplet_components(tri, x, y):
+    """Component label per triplet.
+
+    Two triplets continue each other when they share a pair of craters and their end-to-end
+    directions differ by at most MAX_BEND degrees, so a chain stays straight and chance
+    triplets do not join into long winding groups.
+    """
     m = len(tri)
     pair_keys = np.sort(np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [0, 2]]]), axis=1)
     owner = np.tile(np.arange(m), 3)
     _, pair_idx = np.unique(pair_keys, axis=0, return_inverse=True)
     pair_idx = pair_idx.ravel()
-    size = m + pair_idx.max() + 1
-    graph = coo_matrix((np.ones(owner.size), (owner, pair_idx + m)), shape=(size, size))
-    return connected_components(graph, directed=False)[1][:m]
+    axis = np.arctan2(y[tri[:, 2]] - y[tri[:, 0]], x[tri[:, 2]] - x[tri[:, 0]]) % np.pi
+    # every two triplets holding the same pair: a self-join on the pair
+    order = np.argsort(pair_idx, kind="stable")
+    key, own = pair_idx[order], owner[order]
+    ends = np.searchsorted(key, key, side="right")
+    count = ends - np.arange(key.size) - 1  # later members of the same group
+    a = np.repeat(np.arange(key.size), count)
+    b = a + 1 + (np.arange(a.size) - np.repeat(np.cumsum(count) - count, count))
+    ta, tb = own[a], own[b]
+    bend = np.abs(axis[ta] - axis[tb])
+    bend = np.minimum(bend, np.pi - bend)
+    ok = bend <= np.deg2rad(MAX_BEND)
+    graph = coo_matrix((np.ones(int(ok.sum())), (ta[ok], tb[ok])), shape=(m, m))
+    return connected_components(graph, directed=False)[1]
 
 
-def longest_chain(triplets) -> int:
-    """Craters in the largest group of aligned triplets joined by shared pairs (0 if none)."""
+def _groups(tri, x, y):
+    """Crater indices of each triplet component, largest first."""
+    comp = _triplet_components(tri, x, y)
+    pairs = np.unique(np.column_stack([np.repeat(comp, 3), tri.ravel()]), axis=0)
+    groups = np.split(pairs[:, 1], np.flatnonzero(np.diff(pairs[:, 0])) + 1)
+    return sorted(groups, key=len, reverse=True)
+
+
+def _straighten(idx, x, y, d):
+    """Members of a group that lie within one strip, with the strip's axis and centre.
+
+    Drops the member farthest from the total-least-squares line until every member is
+    within half the strip width (WIDTH_FACTOR/2 of the members' mean diameter) of it:
+    the Broadbent (1980) definition of an alignment, all points in one strip.
+    """
+    idx = np.asarray(idx)
+    while True:
+        pts = np.column_stack([x[idx], y[idx]])
+        centre = pts.mean(axis=0)
+        _, _, vt = np.linalg.svd(pts - centre, full_matrices=False)
+        resid = np.abs((pts - centre) @ vt[1])
+        if len(idx) <= 3 or resid.max() <= 0.5 * WIDTH_FACTOR * d[idx].mean():
+            return idx, vt[0], centre
+        idx = np.delete(idx, int(np.argmax(resid)))
+
+
+def longest_chain(x_m, y_m, diameter_m, triplets) -> int:
+    """Craters in the longest straight chain: the largest group of aligned triplets joined by
+    shared pairs, trimmed to the members inside one strip (0 if there is no triplet)."""
     tri = np.asarray(triplets, dtype=np.int64).reshape(-1, 3)
     if len(tri) == 0:
         return 0
-    comp = _triplet_components(tri)
-    members = np.unique(np.column_stack([np.repeat(comp, 3), tri.ravel()]), axis=0)
-    return int(np.bincount(members[:, 0]).max())
+    x, y, d = (np.asarray(a, float) for a in (x_m, y_m, diameter_m))
+    best = 0
+    for group in _groups(tri, x, y):
+        if len(group) <= best:
+            break
+        best = max(best, len(_straighten(group, x, y, d)[0]))
+    return best
 
 
-def extract_chains(x_m, y_m, triplets, *, min_craters: int = MIN_CHAIN):
-    """Join aligned triplets that share two craters into chains.
+def extract_chains(x_m, y_m, diameter_m, triplets, *, min_craters: int = MIN_CHAIN):
+    """Join aligned triplets that share two craters into straight chains.
 
     Parameters
     ----------
-    x_m, y_m : array_like, shape (n,)
-        Centres (m).
+    x_m, y_m, diameter_m : array_like, shape (n,)
+        Centres and diameters (m).
     triplets : numpy.ndarray, shape (m, 3)
         From :func:`aligned_triplets`.
     min_craters : int
@@ -154,28 +203,26 @@ def extract_chains(x_m, y_m, triplets, *, min_craters: int = MIN_CHAIN):
         Per chain: ``chain_id``, ``n_craters``, ``length_m``, ``azimuth_deg`` (axis
         clockwise from +y, in [0, 180)) and ``geometry`` (shapely LineString, metres):
         the total-least-squares line through the members, from end to end.
+
+    References
+    ----------
+    Broadbent S.R. (1980) J. R. Statist. Soc. A 143(2):109-140 (points within one strip).
     """
-    x = np.asarray(x_m, float)
-    y = np.asarray(y_m, float)
+    x, y, d = (np.asarray(a, float) for a in (x_m, y_m, diameter_m))
     chain_id = np.full(x.size, -1, dtype=np.int64)
     tri = np.asarray(triplets, dtype=np.int64).reshape(-1, 3)
     if len(tri) == 0:
         return chain_id, []
-    comp = _triplet_components(tri)
-    members = {c: np.unique(tri[comp == c]) for c in np.unique(comp)}
+    straight = [_straighten(g, x, y, d) for g in _groups(tri, x, y) if len(g) >= min_craters]
     chains = []
-    for idx in sorted(members.values(), key=len, reverse=True):
+    for idx, u, centre in sorted(straight, key=lambda s: len(s[0]), reverse=True):
         free = idx[chain_id[idx] < 0]
-        # a component that mostly re-uses craters of a longer chain is a side branch of it
+        # a group that mostly re-uses craters of a longer chain is a side branch of it
         if len(idx) < min_craters or len(free) < 2:
             continue
         cid = len(chains)
         chain_id[free] = cid
-        pts = np.column_stack([x[idx], y[idx]])
-        centre = pts.mean(axis=0)
-        _, _, vt = np.linalg.svd(pts - centre, full_matrices=False)
-        u = vt[0]
-        proj = (pts - centre) @ u
+        proj = (np.column_stack([x[idx], y[idx]]) - centre) @ u
         ends = centre + np.outer([proj.min(), proj.max()], u)
         chains.append({
             "chain_id": cid,

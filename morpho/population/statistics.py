@@ -110,7 +110,7 @@ def _spatial_measures(x, y, d, valid_area, radii, min_link):
     return {
         "L": besag_l(k), "g_peak": float(np.nanmax(g)) if np.any(np.isfinite(g)) else np.nan,
         "n_clusters": float(labels.max() + 1), "clustered": float(np.mean(labels >= 0)),
-        "triplets": float(len(tri)), "longest_chain": float(longest_chain(tri)), "rim_share": float(np.mean(rim)),
+        "triplets": float(len(tri)), "longest_chain": float(longest_chain(x, y, d, tri)), "rim_share": float(np.mean(rim)),
         "_labels": labels, "_tri": tri,
     }
 
@@ -239,7 +239,7 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
             _mc_p(obs["rim_share"], simulated["rim_share"]), n,
             "rim-superposed share observed minus the CSR mean; " + _MC, SUPERPOSITION_REFERENCE)
         cluster_id[keep] = obs["_labels"]
-        chain_sub, chains = extract_chains(xs, ys, obs["_tri"])
+        chain_sub, chains = extract_chains(xs, ys, ds, obs["_tri"])
         chain_id[keep] = chain_sub
     else:
         for name in ("ripley_L_max_deviation", "pair_correlation_peak", "dbscan_n_clusters",
