@@ -15,7 +15,7 @@ from morpho.population.alignments import (
     extract_chains,
 )
 from morpho.population.orientation import axial_rayleigh
-from morpho.population.projection import to_local_metric
+from morpho.population.projection import local_metric_crs, to_local_metric
 from morpho.population.superposition import on_larger_rim
 
 
@@ -100,13 +100,13 @@ def test_to_local_metric_distances_are_geodesic_from_centre():
     radius = 1_737_400.0
     lon = np.array([10.0, 10.5, 9.2, 11.0])
     lat = np.array([-20.0, -19.0, -21.5, -20.3])
-    x, y, crs = to_local_metric(lon, lat, radius, lon0=10.0, lat0=-20.0)
+    x, y = to_local_metric(lon, lat, radius, lon0=10.0, lat0=-20.0)
     _, _, dist = Geod(a=radius, b=radius).inv(np.full(4, 10.0), np.full(4, -20.0), lon, lat)
     np.testing.assert_allclose(np.hypot(x, y), dist, rtol=1e-9, atol=1e-6)
     assert x[0] == pytest.approx(0.0, abs=1e-6)
-    assert crs.coordinate_operation.method_name == "Azimuthal Equidistant"
+    assert local_metric_crs(radius, 10.0, -20.0).coordinate_operation.method_name == "Azimuthal Equidistant"
     # default centre: mean position, across the antimeridian too
-    xs, _, _ = to_local_metric(np.array([179.5, -179.5]), np.array([0.0, 0.0]), radius)
+    xs, _ = to_local_metric(np.array([179.5, -179.5]), np.array([0.0, 0.0]), radius)
     np.testing.assert_allclose(xs, [-radius * np.deg2rad(0.5), radius * np.deg2rad(0.5)], rtol=1e-9)
 
 

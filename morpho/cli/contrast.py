@@ -72,7 +72,7 @@ def _footprint_metric(footprint, crs, radius, lon0, lat0):
 
     def project(xy):
         lon, lat = to_geo.transform(xy[:, 0], xy[:, 1])
-        x, y, _ = to_local_metric(lon, lat, radius, lon0=lon0, lat0=lat0)
+        x, y = to_local_metric(lon, lat, radius, lon0=lon0, lat0=lat0)
         return np.column_stack([x, y])
 
     out = shapely.make_valid(shapely.transform(geom, project))
@@ -119,7 +119,7 @@ def read_region(path):
     rad = np.deg2rad(lon)
     lon0 = float(np.rad2deg(np.arctan2(np.sin(rad).mean(), np.cos(rad).mean())))
     lat0 = float(np.mean(lat))
-    x, y, _ = to_local_metric(lon, lat, radius, lon0=lon0, lat0=lat0)
+    x, y = to_local_metric(lon, lat, radius, lon0=lon0, lat0=lat0)
     craters["x_m"], craters["y_m"] = x, y
     notes = []
     area = None

@@ -42,9 +42,7 @@ def to_local_metric(lon_deg, lat_deg, body_radius_m: float, lon0: float | None =
     Returns
     -------
     x_m, y_m : numpy.ndarray, shape (n,)
-        Easting and northing (m).
-    crs : pyproj.CRS
-        The projection used (to put footprints in the same plane).
+        Easting and northing (m). The plane is ``local_metric_crs(body_radius_m, lon0, lat0)``.
 
     References
     ----------
@@ -60,4 +58,4 @@ def to_local_metric(lon_deg, lat_deg, body_radius_m: float, lon0: float | None =
     geog = pyproj.CRS.from_proj4(f"+proj=longlat +R={body_radius_m:.12g} +no_defs +type=crs")
     tr = pyproj.Transformer.from_crs(geog, crs, always_xy=True)
     x, y = tr.transform(lon, lat)
-    return np.asarray(x, float), np.asarray(y, float), crs
+    return np.asarray(x, float), np.asarray(y, float)
