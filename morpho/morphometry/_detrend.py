@@ -58,7 +58,9 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=3
         sel = sel[:: int(np.ceil(sel.size / 10))]
     n = zp.shape[0]
     z = zp[:, :, sel].reshape(n, -1)
-    rr = radius_px[:, None, None] * r_norm[sel][None, None, :]
+    # Work in crater radii (all basis columns of order 1: a well-conditioned system);
+    # slopes are converted to per-pixel at the end.
+    rr = np.broadcast_to(r_norm[sel][None, None, :], zp[:, :, sel].shape)
     u = (rr * np.cos(azimuths)[None, :, None]).reshape(n, -1)
     v = (rr * np.sin(azimuths)[None, :, None]).reshape(n, -1)
     f = np.broadcast_to(r_norm[sel][None, None, :] ** -FLANK_EXPONENT, zp[:, :, sel].shape).reshape(n, -1)
@@ -80,6 +82,8 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=3
         # A perfect plane has MAD 0: keep every valid point rather than none.
         w = np.where(scale[:, None] > 0, np.where(ok & (np.abs(t) < 1), (1 - t * t) ** 2, 0.0),
                      ok.astype(float))
+    coef = coef.copy()
+    coef[:, 1:3] /= radius_px[:, None]
     return coef
 
 
