@@ -194,7 +194,7 @@ def find_candidates(
     *,
     min_radius_px: float,
     max_radius_px: float,
-    threshold: float = 0.2,
+    threshold: float = 0.33,
     min_slope: float = 0.0,
 ) -> Candidates:
     """Scale-space maxima of the radial-symmetry response over a Gaussian pyramid.
