@@ -133,6 +133,10 @@ def test_columns_declared_and_nodata_handling():
     assert t.measure_status[0] == "ok"
     assert t.depth_m[0] == pytest.approx(16.0, rel=0.05)  # measured from the valid half
     assert t.measure_status[1] == "no_valid_data" and np.isnan(t.depth_m[1])
+    empty = measure_craters(z, 1.0, [], [], [], n_boot=10)
+    assert empty.empty and list(empty.columns) == list(t.columns)
+    flat = measure_craters(np.zeros((60, 60)), 1.0, [30.0], [30.0], [8.0], n_boot=0)
+    assert flat.measure_status[0] == "no_rim_crest"  # nothing to measure on a flat plain
 
 
 def test_per_crater_spacing_and_transform():

@@ -3,7 +3,10 @@
 Shared definitions: elevations are relative to the "plain", a robust plane (Tukey-weighted
 least squares with an r^-3 ejecta-flank term) fitted to profile samples 1.3-2.5 R from the
 refined centre; profiles are 64 azimuths x uniform radii to 2.5 R (bilinear); "mean
-profile" is their NaN-aware azimuthal mean; R = rim-crest radius.
+profile" is their NaN-aware azimuthal mean; R = rim-crest radius. The crest on each azimuth
+is the highest sample within 0.7-1.3 R, moved to where parabolas through the inner wall and
+the outer flank (1-3 px away) meet, which undoes the outward shift of a sharp rim blurred
+by sampling.
 """
 
 from ._field import Field
@@ -48,7 +51,9 @@ FIELDS = (
           has_error=True),
     Field("depth_m", "m", "float64", "Depth from rim crest to floor.",
           "rim level (60th percentile of per-azimuth crest elevations) minus the floor level "
-          "(lowest point of the mean profile within 0.9 R)", f"{_PIKE}; {_BRETON}", has_error=True),
+          "(lowest value, on the radii used, of an area-weighted fit z = a + b r^2 to the mean "
+          "profile within 10 % of the relief above its minimum, inside 0.9 R)",
+          f"{_PIKE}; {_BRETON} (robust rim/floor levels)", has_error=True),
     Field("rim_height_m", "m", "float64", "Rim-crest height above the surrounding plain.",
           "rim level (60th percentile of crest elevations) above the annulus plain", _PIKE,
           has_error=True),

@@ -164,6 +164,11 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         status = np.full(r0.size, "ok", dtype=object)
     rng = np.random.default_rng(seed)
     boot_idx = rng.integers(0, n_azimuths, size=(max(int(n_boot), 0), n_azimuths))
+    if r0.size == 0:
+        # Same columns and dtypes as a real result: measure one dummy crater, keep no rows.
+        probe = _measure_chunk(np.zeros((16, 16)), np.array([8.0]), np.array([8.0]),
+                               np.array([3.0]), np.array([1.0]), n_azimuths, boot_idx, body)
+        return probe.iloc[:0].assign(measure_status=pd.Series(dtype=object))
     order = np.argsort(rad0, kind="stable")
     parts = []
     for idx in np.array_split(order, max(1, int(np.ceil(order.size / chunk)))):

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage
 
+from ._validate import as_centres
+
 __all__ = ["RadialProfiles", "sample_radial_profiles", "sample_polar"]
 
 
@@ -77,6 +79,11 @@ def sample_radial_profiles(
     RadialProfiles
         Samples are NaN where any contributing pixel is NaN or outside the grid.
 
+    Raises
+    ------
+    morpho.errors.InputError
+        (a ``ValueError``) for mismatched shapes, non-finite centres or radii <= 0.
+
     Examples
     --------
     >>> import numpy as np
@@ -87,15 +94,8 @@ def sample_radial_profiles(
     True
     """
     z = np.asarray(z, dtype=np.float64)
-    rows = np.atleast_1d(np.asarray(rows, dtype=np.float64))
-    cols = np.atleast_1d(np.asarray(cols, dtype=np.float64))
-    radius_px = np.atleast_1d(np.asarray(radius_px, dtype=np.float64))
-    if not (rows.shape == cols.shape == radius_px.shape) or rows.ndim != 1:
-        raise ValueError(
-            f"rows, cols and radius_px must be 1-D of one length; got {rows.shape}, {cols.shape}, {radius_px.shape}"
-        )
-    if np.any(~np.isfinite(radius_px)) or np.any(radius_px <= 0):
-        raise ValueError("radius_px must be finite and > 0")
+    # InputError subclasses ValueError: callers catching ValueError keep working.
+    rows, cols, radius_px = as_centres(rows, cols, radius_px)
     az = np.linspace(0.0, 2.0 * np.pi, n_azimuths, endpoint=False)
     r_norm = np.linspace(0.0, r_max_factor, n_radii)
     vals = sample_polar(z, rows, cols, radius_px, az, r_norm, order=order)
