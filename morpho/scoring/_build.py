@@ -9,7 +9,14 @@ from pathlib import Path
 from ..errors import OutputExistsError
 from ._card import build_card, card_paths
 from ._persistence import save_model
-from ._training import build_training_set, evaluate_model, fresh_bowl_check, train_model
+from ._training import (
+    SURFACE_SHARE,
+    TRAINING_DEGRADATION,
+    build_training_set,
+    evaluate_model,
+    fresh_bowl_check,
+    train_model,
+)
 
 __all__ = ["DEFAULT_SEED", "DEFAULT_N_PER_CLASS", "rebuild_command", "rebuild_model"]
 
@@ -19,6 +26,8 @@ DEFAULT_SEED = 6
 DEFAULT_N_PER_CLASS = 900
 #: Held-out craters per class, rendered with a seed no training crater used.
 HELD_OUT_SEED_OFFSET = 1_000_003
+#: Normalised degradation of the stress-test craters (beyond the training range).
+STRESS_DEGRADATION = (0.02, 0.05)
 
 
 def rebuild_command(hypotheses_dir, output, seed, n_per_class) -> str:
@@ -76,6 +85,10 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
     held = build_training_set(hyps, n_per_class=n_held_out, body=body, seed=seed + HELD_OUT_SEED_OFFSET)
     evaluation = evaluate_model(model, held)
     bowls = fresh_bowl_check(model, seed=seed + 2 * HELD_OUT_SEED_OFFSET, body=body)
+    # Stress test outside the training range: strongly degraded craters of every family.
+    worn = build_training_set(hyps, n_per_class=max(30, n_held_out // 3), body=body,
+                              seed=seed + 3 * HELD_OUT_SEED_OFFSET, degradation=STRESS_DEGRADATION)
+    stress = evaluate_model(model, worn)
 
     counts = train["family"].value_counts().sort_index()
     ok = train["measure_status"].astype(str).eq("ok") if "measure_status" in train else None
@@ -86,8 +99,14 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
         "pixels_per_diameter_bands": "10-20, 20-50, 50-80 (equal shares)",
         "body": body,
         "seed": seed,
+        "degradation_kappa_t_over_D2": list(TRAINING_DEGRADATION),
+        "surface_share": SURFACE_SHARE,
         "held_out": f"{n_held_out} impact craters + the same number of spot craters, seed {seed + HELD_OUT_SEED_OFFSET}",
         "spot_family_accuracy_held_out": round(evaluation["family_accuracy"], 4),
+        "held_out_by_context": {
+            ctx: {r["band"]: {"n": r["n"], "accuracy": round(r["accuracy"], 4), "ece": round(r["ece"], 4)}
+                  for r in rows if r["band"] in (">=20 px", "10-20 px")}
+            for ctx, rows in evaluation["by_context"].items()},
         "verdict_shares_held_out": evaluation["verdicts"],
         "renderer": "morpho.synth.render_crater_patches",
         "measurement": "morpho.morphometry.measure_craters (same code path as real craters)",
@@ -98,6 +117,9 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
     card = build_card(
         name=out.name[: -len(".skops")], model=model, hypotheses=hyp_rows, training=training,
         metrics=evaluation["bands"], bowl_check=bowls,
+        stress={"what": f"strongly degraded craters, kappa t / D^2 in {list(STRESS_DEGRADATION)} "
+                        "(outside the training range)",
+                "bands": stress["bands"], "verdicts": stress["verdicts"]},
         rebuild_command=rebuild_command(cmd_dir, str(out.with_suffix("")), seed, n_per_class),
         training_time_s=train_s,
     )

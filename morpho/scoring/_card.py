@@ -23,7 +23,12 @@ DESIGN = (
     "spot_family: a second class-balanced HistGradientBoostingClassifier on the spot families only. "
     "typicality_*: conformal p-value of the 5-NN distance in robust z-scores, fitted on each hypothesis "
     "separately (no Gaussian assumption; impact craters are multimodal, fresh to degraded, simple to "
-    "complex). Resolution: pixels_per_diameter is a feature of the classifier and training craters span "
+    "complex). Training craters: half single-crater patches (morpho.synth.render_crater_patches), half "
+    "craters on whole mixed-family synthetic surfaces (morpho.synth.generate_surface: neighbours, ejecta, "
+    "superposition), all measured by morpho.morphometry.measure_craters from a jittered first guess; "
+    "impact : spot = 1 : 1, spot families equal. Derived ratios of measured columns (rim_to_depth, "
+    "wall_slope_ratio, wall_steepness_per_depth) are added because trees split one feature at a time. "
+    "Resolution: pixels_per_diameter is a feature of the classifier and training craters span "
     "10-80 px per diameter; it is excluded from typicality (resolution is not morphology). Absolute sizes "
     "(diameter_m, depth_m, ...) are not features: the spot families have no planetary size range, so a "
     "size feature would only learn the generator's choice."
@@ -36,8 +41,11 @@ FAILURE_MODES = (
     "domes, buried or filled craters, craters on steep slopes) are forced to a likelihood ratio between "
     "impact and spot; typicality (verdict 'neither') is the guard, but a 5-NN distance in many dimensions "
     "can call an unusual yet real crater typical or atypical.",
-    "Heavily degraded impact craters lose the rim and bowl that separate them from shallow spot scars; "
-    "expect 'undecided' or low p_impact for them.",
+    "Heavily degraded craters (kappa t / D^2 > 0.02, d/d0 < ~0.5) are outside the training range and lose "
+    "the rim and bowl that separate impact from spot shapes; see the stress test for the accuracy there.",
+    "Craters whose rims touch or overlap a neighbour's (rim-to-rim separation below ~1.2 radii sums): the "
+    "neighbour's rim or ejecta disturbs the flank-decay and rim measurements and pushes fresh impact craters "
+    "towards spot-like scores.",
     "Overlapping craters and craters cut by the DEM edge or nodata: the features come from partial "
     "profiles (check rim_coverage).",
     "Everything is learnt from synthetic craters: a systematic difference between the generator and real "
@@ -55,6 +63,7 @@ def build_card(
     training,
     metrics,
     bowl_check=None,
+    stress=None,
     rebuild_command,
     training_time_s=None,
 ):
@@ -72,6 +81,8 @@ def build_card(
         Held-out metrics by resolution band (:func:`morpho.scoring.metrics_by_band`).
     bowl_check : dict, optional
         Fresh Pike-shaped bowls on held-out DEMs: ``{"n", "share_p_impact_ge_0_5"}``.
+    stress : dict, optional
+        Metrics outside the training range: ``{"what", "bands", "verdicts"}``.
     rebuild_command : str
     training_time_s : float, optional
     """
@@ -99,6 +110,7 @@ def build_card(
         "training_time_s": training_time_s,
         "held_out_metrics": list(metrics),
         "fresh_bowl_check": bowl_check,
+        "stress_test": stress,
         "failure_modes": list(FAILURE_MODES),
         "caveats": CAVEATS,
         "rebuild_command": rebuild_command,
@@ -133,6 +145,12 @@ def render_card_markdown(card: dict) -> str:
     if bowl:
         lines += ["", f"Fresh Pike-shaped bowls on held-out DEMs: {_fmt(bowl.get('share_p_impact_ge_0_5'))} "
                       f"of {bowl.get('n')} have p_impact >= 0.5."]
+    stress = card.get("stress_test")
+    if stress:
+        lines += ["", f"Stress test, {stress.get('what')}:", "", "| band | n | accuracy | Brier | ECE |",
+                  "|---|---|---|---|---|"]
+        lines += [f"| {m['band']} | {m['n']} | {_fmt(m['accuracy'])} | {_fmt(m['brier'])} | {_fmt(m['ece'])} |"
+                  for m in stress.get("bands", [])]
     th = card.get("thresholds", {})
     lines += ["", "## Verdict thresholds", "", f"- typicality < {th.get('typicality')} = atypical",
               f"- |log10_lr| < {th.get('abs_log10_lr')} = weak", f"- rule: {th.get('verdict_rule')}", ""]

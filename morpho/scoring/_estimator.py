@@ -87,7 +87,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         Calibration of ``p_impact`` (Platt 1999; Zadrozny & Elkan 2002).
     cv : int, default=3
         Folds for the cross-validated calibration (fewer if a class is smaller).
-    max_iter, learning_rate, max_leaf_nodes, l2_regularization, min_samples_leaf
+    max_iter, learning_rate, max_leaf_nodes, l2_regularization, min_samples_leaf, max_features
         Passed to both :class:`~sklearn.ensemble.HistGradientBoostingClassifier`.
     n_neighbors : int, default=5
         k of the k-NN typicality score.
@@ -137,6 +137,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         max_leaf_nodes=15,
         l2_regularization=1.0,
         min_samples_leaf=20,
+        max_features=1.0,
         n_neighbors=5,
         max_reference=2000,
         typicality_exclude=("pixels_per_diameter",),
@@ -150,6 +151,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         self.max_leaf_nodes = max_leaf_nodes
         self.l2_regularization = l2_regularization
         self.min_samples_leaf = min_samples_leaf
+        self.max_features = max_features
         self.n_neighbors = n_neighbors
         self.max_reference = max_reference
         self.typicality_exclude = typicality_exclude
@@ -168,6 +170,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             max_leaf_nodes=self.max_leaf_nodes,
             l2_regularization=self.l2_regularization,
             min_samples_leaf=self.min_samples_leaf,
+            max_features=self.max_features,
             early_stopping=False,
             random_state=seed,
         )

@@ -97,7 +97,8 @@ def save_model(model, path, card=None, *, overwrite=False):
     fd, tmp = tempfile.mkstemp(prefix=path.name, suffix=".tmp", dir=path.parent)
     os.close(fd)
     try:
-        _sio().dump(payload, tmp)
+        # Deflate: the trees and reference arrays compress to about a third.
+        _sio().dump(payload, tmp, compression=zipfile.ZIP_DEFLATED, compresslevel=9)
         os.replace(tmp, path)
     except Exception as err:
         Path(tmp).unlink(missing_ok=True)

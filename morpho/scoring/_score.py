@@ -8,7 +8,8 @@ import pandas as pd
 from ..errors import InputError
 from ._estimator import log10_lr_from_p
 
-__all__ = ["SCORE_COLUMNS", "N_EVIDENCE", "model_features", "score_craters"]
+__all__ = ["SCORE_COLUMNS", "N_EVIDENCE", "DERIVED_FEATURES", "add_derived_features", "model_features",
+           "score_craters"]
 
 SCORE_COLUMNS = (
     "p_impact",
@@ -21,6 +22,33 @@ SCORE_COLUMNS = (
     "p_spot_family",
 )
 N_EVIDENCE = 3
+
+#: Dimensionless ratios of measured morphometry columns that the trees cannot form on
+#: their own (a tree splits one feature at a time): name -> (numerator, denominator, how).
+DERIVED_FEATURES = {
+    # rim height relative to depth: raised melt rims vs impact rims (Pike 1977 h/d ~ 0.18)
+    "rim_to_depth": ("h_over_D", "d_over_D", "ratio"),
+    # upper-wall vs mean-wall slope: how sharply the wall steepens towards the rim
+    "wall_slope_ratio": ("wall_slope_upper_deg", "wall_slope_mean_deg", "ratio"),
+    # wall steepness per unit depth/diameter: bowl shape independent of depth
+    "wall_steepness_per_depth": ("wall_slope_mean_deg", "d_over_D", "tan_ratio"),
+}
+
+
+def add_derived_features(df: pd.DataFrame) -> pd.DataFrame:
+    """Add the :data:`DERIVED_FEATURES` whose source columns exist (NaN where undefined)."""
+    new = {}
+    for name, (num, den, how) in DERIVED_FEATURES.items():
+        if name in df or num not in df or den not in df:
+            continue
+        a = df[num].to_numpy(np.float64)
+        b = df[den].to_numpy(np.float64)
+        if how == "tan_ratio":
+            a = np.tan(np.radians(a))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            v = a / b
+        new[name] = np.where(np.isfinite(v) & (b > 0), v, np.nan)
+    return df.assign(**new) if new else df
 
 
 def model_features(features_df: pd.DataFrame, model) -> pd.DataFrame:
@@ -38,7 +66,7 @@ def model_features(features_df: pd.DataFrame, model) -> pd.DataFrame:
     if names is None:
         raise InputError("the scoring model was fitted without feature names.",
                          fix="fit it on a DataFrame (morpho.scoring.train_model does).")
-    df = features_df
+    df = add_derived_features(features_df)
     if "pixels_per_diameter" in names and "pixels_per_diameter" not in df and "radius_px" in df:
         df = df.assign(pixels_per_diameter=2.0 * df["radius_px"].astype(np.float64))
     missing = [n for n in names if n not in df.columns]

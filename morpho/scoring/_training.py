@@ -16,6 +16,8 @@ import pandas as pd
 from ..errors import InputError
 from ._estimator import ImpactSpotClassifier
 from ._metrics import metrics_by_band
+from ._score import DERIVED_FEATURES, add_derived_features
+from ._surfaces import jittered_guess, surface_training_set
 
 __all__ = [
     "TRAINING_BANDS",
@@ -36,9 +38,12 @@ log = logging.getLogger(__name__)
 TRAINING_BANDS = ((10.0, 20.0), (20.0, 50.0), (50.0, 80.0))
 
 #: Normalised degradation kappa t / D^2 of the training craters (uniform, every family):
-#: fresh to strongly degraded, d/d0 down to ~0.3 for a simple lunar crater (Fassett &
-#: Thomson 2014, JGR Planets 119:2255, diffusion model; d/d0 ~ 0.52 at 0.0165).
-TRAINING_DEGRADATION = (0.0, 0.05)
+#: fresh to moderately degraded, d/d0 down to ~0.5 for a simple lunar crater (Fassett &
+#: Thomson 2014, JGR Planets 119:2255, diffusion model: d/d0 ~ 0.52 at 0.0165). More
+#: degraded craters lose the shape that tells the hypotheses apart (see the model card).
+TRAINING_DEGRADATION = (0.0, 0.02)
+#: Share of training craters taken from whole mixed-family surfaces (the rest: patches).
+SURFACE_SHARE = 0.75
 
 #: Dimensionless morphometry columns that describe data or geometry, not crater shape.
 NON_FEATURES = frozenset({
@@ -57,9 +62,10 @@ def feature_columns(columns) -> list[str]:
 
     Taken from the morphometry section of the data dictionary: dimensionless (unit
     ``"1"``) or angular (degree) float columns and presence flags (bool, as 0/1), without
-    their ``_err`` companions and without :data:`NON_FEATURES`. Absolute sizes (m) are left out on purpose: the spot
-    families have no planetary size range, so a size feature would learn the generator's
-    choice, not morphology.
+    their ``_err`` companions and without :data:`NON_FEATURES`; plus the ratios of
+    :data:`morpho.scoring._score.DERIVED_FEATURES`. Absolute sizes (m) are left out on
+    purpose: the spot families have no planetary size range, so a size feature would
+    learn the generator's choice, not morphology.
     """
     from ..dictionary import _morphometry
 
@@ -68,15 +74,12 @@ def feature_columns(columns) -> list[str]:
         f.name for f in _morphometry.FIELDS
         if ((f.unit in allowed and f.dtype == "float64") or f.dtype == "bool") and f.name not in NON_FEATURES
     ]
-    cols = [c for c in shape if c in set(columns)]
-    if "pixels_per_diameter" in set(columns) or "radius_px" in set(columns):
+    present = set(columns)
+    cols = [c for c in shape if c in present]
+    cols += [name for name, (num, den, _) in DERIVED_FEATURES.items() if num in present and den in present]
+    if "pixels_per_diameter" in present or "radius_px" in present:
         cols.append("pixels_per_diameter")
     return cols
-
-
-#: Relative sd of the radius guess and of the centre guess (in radii) handed to the
-#: morphometry: a detector's first guess is not exact, so neither is the training crater's.
-GUESS_JITTER = (0.08, 0.05)
 
 
 def pack_patches(sides, width: int = 4096, gap: int = 8):
@@ -132,11 +135,7 @@ def measure_patches(patches, truth: pd.DataFrame, seed: int, measure=None, batch
         from ..morphometry import measure_craters as measure
     rng = np.random.default_rng(seed)
     n = len(patches)
-    r_true = truth["radius_px"].to_numpy(np.float64)
-    r_guess = r_true * np.exp(rng.normal(0.0, GUESS_JITTER[0], n))
-    d_row, d_col = rng.normal(0.0, GUESS_JITTER[1], (2, n)) * r_true
-    rows = truth["row"].to_numpy(np.float64) + d_row
-    cols = truth["col"].to_numpy(np.float64) + d_col
+    rows, cols, r_guess = jittered_guess(truth["row"], truth["col"], truth["radius_px"], rng)
     spacing = truth["pixel_size_m"].to_numpy(np.float64)
     frames = []
     for start in range(0, n, batch):
@@ -163,6 +162,7 @@ def build_training_set(
     body: str = "moon",
     seed: int = 0,
     degradation=TRAINING_DEGRADATION,
+    surface_share: float = SURFACE_SHARE,
 ) -> pd.DataFrame:
     """Render and measure craters of every hypothesis family.
 
@@ -183,12 +183,17 @@ def build_training_set(
     degradation : (float, float)
         Range of the normalised degradation ``kappa t / D^2`` (uniform), the same for
         every family so that degradation cannot tell them apart.
+    surface_share : float
+        Share of the craters taken from whole mixed-family surfaces (neighbours, ejecta,
+        superposition; :func:`morpho.scoring._surfaces.surface_training_set`); the rest are
+        single-crater patches (:func:`morpho.synth.render_crater_patches`).
 
     Returns
     -------
     DataFrame
         The measured features, ``pixels_per_diameter``, and truth columns ``family``,
-        ``origin``, ``ppd_band``.
+        ``origin``, ``ppd_band``, ``context`` (patch/surface), ``truth_degradation``,
+        ``truth_complex``, ``truth_diameter_m``.
     """
     from ..hypotheses import default_hypotheses
     from ..synth import render_crater_patches
@@ -201,10 +206,12 @@ def build_training_set(
             f"training needs exactly one impact hypothesis and at least one spot family; got "
             f"impact={[h.name for h in impact]}, spot={[h.name for h in spots]}.",
             fix="put impact.toml and at least one spot-family file in the hypotheses folder.")
-    n_spot = int(np.ceil(n_per_class / len(spots)))
-    plan = [(impact[0], n_per_class)] + [(h, n_spot) for h in sorted(spots, key=lambda h: h.name)]
+    n_surface = int(round(n_per_class * float(surface_share)))
+    n_patch = n_per_class - n_surface
+    n_spot = int(np.ceil(n_patch / len(spots)))
+    plan = [(impact[0], n_patch)] + [(h, n_spot) for h in sorted(spots, key=lambda h: h.name)]
     bands = [tuple(map(float, b)) for b in pixels_per_diameter_bands]
-    children = np.random.SeedSequence(seed).spawn(len(plan) * len(bands))
+    children = np.random.SeedSequence(seed).spawn(len(plan) * len(bands) + len(bands))
     frames = []
     k = 0
     for h, n in plan:
@@ -219,11 +226,25 @@ def build_training_set(
                                                    noise_m=noise_m, body=body, seed=child,
                                                    hypotheses=hyps, degradation=degradation)
             df = measure_patches(patches, truth, seed=child)
+            # Truth for diagnostics only (never a feature: feature_columns reads the dictionary).
+            for col in ("degradation", "complex", "diameter_m"):
+                if col in truth:
+                    df[f"truth_{col}"] = truth[col].to_numpy()
             if "pixels_per_diameter" not in df:
                 df["pixels_per_diameter"] = 2.0 * df["radius_px"].astype(np.float64)
             df["family"] = h.name
             df["origin"] = "impact" if h.origin == "impact" else "spot"
             df["ppd_band"] = f"{band[0]:g}-{band[1]:g}"
+            df["context"] = "patch"
+            frames.append(df)
+    if n_surface > 0:
+        per_band = int(np.ceil(2 * n_surface / len(bands)))
+        for band in bands:
+            child = int(children[k].generate_state(1)[0])
+            k += 1
+            df = surface_training_set(hyps, per_band, band, body=body, seed=child, degradation=degradation)
+            df["ppd_band"] = f"{band[0]:g}-{band[1]:g}"
+            df["context"] = "surface"
             frames.append(df)
     return pd.concat(frames, ignore_index=True)
 
@@ -233,7 +254,7 @@ def train_model(training: pd.DataFrame, seed: int = 0, **params) -> ImpactSpotCl
 
     Craters the morphometry could not measure (``measure_status != "ok"``) are dropped.
     """
-    df = _usable(training)
+    df = add_derived_features(_usable(training))
     # A column nobody could measure carries nothing (and trips the boosting's binning).
     cols = [c for c in feature_columns(df.columns) if df[c].notna().any()]
     if not cols:
@@ -275,7 +296,8 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
     Returns
     -------
     dict
-        ``{"bands": [...], "family_accuracy": float, "verdicts": {...}, "n_unmeasured": int}``
+        ``{"bands": [...], "family_accuracy": float, "verdicts": {...}, "by_context": {context: [...]},
+        "n_unmeasured": int}``; ``context`` is ``patch`` (isolated crater) or ``surface`` (crowded).
     """
     from ._score import score_craters
 
@@ -290,7 +312,13 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
         .round(4).to_dict()
         for origin in ("impact", "spot")
     }
-    return {"bands": bands, "family_accuracy": fam_acc, "verdicts": verdicts,
+    by_context = {}
+    if "context" in df:
+        for ctx in sorted(df["context"].unique()):
+            sel = (df["context"] == ctx).to_numpy()
+            by_context[str(ctx)] = metrics_by_band(is_impact[sel], scores["p_impact"].to_numpy()[sel],
+                                                   df["pixels_per_diameter"].to_numpy()[sel])
+    return {"bands": bands, "family_accuracy": fam_acc, "verdicts": verdicts, "by_context": by_context,
             "n_unmeasured": int(len(held_out) - len(df))}
 
 
