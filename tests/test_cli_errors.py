@@ -57,6 +57,8 @@ def _bad_inputs(tmp_path):
                                   "too_small", "multiband"])
 @pytest.mark.parametrize("sub", ["survey", "measure"])
 def test_bad_dem_one_line_error_and_no_output(tmp_path, case, sub):
+    if sub == "measure" and case == "too_small":
+        pytest.skip("measure searches nothing, so no smallest crater size applies")
     path, extra, pattern = _bad_inputs(tmp_path)[case]
     out = tmp_path / "out.gpkg"
     args = [sub, str(path), "-o", str(out), *extra]
