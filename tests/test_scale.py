@@ -1,0 +1,113 @@
+"""Tiled surveys: serial, local-cluster and remote-scheduler runs agree; kill + resume; failed tiles."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+from affine import Affine
+
+from morpho.pipeline import survey
+
+from .conftest import MOON_STERE, write_raster
+from .test_survey_geometry import pike_bowl
+
+N = 384
+SPACING = 40.0
+TILE = 128  # 9 tiles
+MAXD = 40   # px -> overlap 50 px
+
+
+@pytest.fixture(scope="module")
+def crater_dem(tmp_path_factory):
+    """Fresh Pike-shaped craters (Pike 1977) at random places, some straddling tile borders."""
+    rng = np.random.default_rng(42)
+    yy, xx = np.mgrid[0:N, 0:N].astype(float)
+    z = rng.normal(0, 0.5, (N, N))
+    centres = rng.uniform(15, N - 15, (30, 2))
+    centres[:4] = [[128, 60], [256, 200], [100, 128], [300, 256]]  # on tile borders
+    for (r0, c0), d_px in zip(centres, rng.uniform(12, 30, len(centres)), strict=True):
+        z += pike_bowl(np.hypot(yy - r0, xx - c0) * SPACING, d_px * SPACING)
+    path = tmp_path_factory.mktemp("scale") / "field.tif"
+    return write_raster(path, z.astype("float32"), crs=MOON_STERE,
+                        transform=Affine(SPACING, 0, 0, 0, -SPACING, 0))
+
+
+def _key(craters):
+    df = pd.DataFrame(craters.drop(columns="geometry"))
+    cols = ["crater_id", "center_x", "center_y", "diameter_m", "depth_m", "p_impact"]
+    return df[cols].sort_values("crater_id").reset_index(drop=True)
+
+
+@pytest.fixture(scope="module")
+def serial(crater_dem):
+    return survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=1)
+
+
+def test_tiled_survey_finds_border_craters_once(serial, crater_dem):
+    c = serial.craters
+    assert serial.run["n_tiles"] == "9"
+    # no two craters closer than a quarter of their diameter (duplicates from overlaps merged)
+    xy = c[["center_x", "center_y"]].to_numpy()
+    d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
+    np.fill_diagonal(d, np.inf)
+    assert (d.min(axis=1) > 0.25 * c["diameter_m"].to_numpy()).all()
+    for r0, c0 in [(128, 60), (256, 200), (100, 128), (300, 256)]:
+        x, y = (c0 + 0.5) * SPACING, -(r0 + 0.5) * SPACING
+        assert np.hypot(c["center_x"] - x, c["center_y"] - y).min() < 3 * SPACING
+
+
+@pytest.mark.slow
+def test_local_cluster_and_remote_scheduler_match_serial(serial, crater_dem):
+    from dask.distributed import LocalCluster
+
+    local = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2)
+    pd.testing.assert_frame_equal(_key(local.craters), _key(serial.craters))
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as cluster:
+        remote = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2,
+                        scheduler=cluster.scheduler_address)
+    pd.testing.assert_frame_equal(_key(remote.craters), _key(serial.craters))
+
+
+def test_failing_tile_is_reported_and_other_tiles_complete(serial, crater_dem):
+    res = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, _fail_tiles=(4,))
+    assert res.partial and len(res.failed_tiles) == 1
+    assert "made to fail" in next(iter(res.failed_tiles.values()))
+    assert res.run["tiles_failed_count"] == "1"
+    lost = serial.craters["source_tile"] == "r000128_c000128"
+    got = set(np.round(res.craters["center_x"], 3))
+    assert set(np.round(serial.craters.loc[~lost, "center_x"], 3)) <= got
+
+
+@pytest.mark.slow
+def test_killed_survey_resumes_to_the_same_result(tmp_path, crater_dem):
+    out = tmp_path / "killed.gpkg"
+    run_dir = tmp_path / "killed.gpkg.morpho-run"
+    cmd = [sys.executable, "-m", "morpho.cli.main", "-q", "survey", str(crater_dem), "-o", str(out),
+           "--tile-size", str(TILE), "--max-diameter-px", str(MAXD), "--seed", "2", "--workers", "1"]
+    proc = subprocess.Popen(cmd, start_new_session=True)
+    t0 = time.time()
+    while time.time() - t0 < 120 and len(list(run_dir.glob("*.parquet"))) < 3:
+        time.sleep(0.05)
+    os.killpg(proc.pid, signal.SIGKILL)
+    proc.wait()
+    done_before = len(list(run_dir.glob("*.parquet")))
+    assert 3 <= done_before < 9 and not out.exists()
+    res = subprocess.run([*cmd, "--resume"], capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stderr
+    full = tmp_path / "full.gpkg"
+    res2 = subprocess.run([*cmd[:6], str(full), *cmd[7:]], capture_output=True, text=True, timeout=300)
+    assert res2.returncode == 0, res2.stderr
+    a = pyogrio.read_dataframe(out, layer="craters")
+    b = pyogrio.read_dataframe(full, layer="craters")
+    pd.testing.assert_frame_equal(_key(a), _key(b))
+    run = pyogrio.read_dataframe(out, layer="run").set_index("key")["value"]
+    assert int(run["param.tiles_reused"]) == done_before
