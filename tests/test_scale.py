@@ -104,7 +104,7 @@ def test_killed_survey_resumes_to_the_same_result(tmp_path, crater_dem):
     res = subprocess.run([*cmd, "--resume"], capture_output=True, text=True, timeout=300)
     assert res.returncode == 0, res.stderr
     full = tmp_path / "full.gpkg"
-    res2 = subprocess.run([*cmd[:6], str(full), *cmd[7:]], capture_output=True, text=True, timeout=300)
+    res2 = subprocess.run([*cmd[:7], str(full), *cmd[8:]], capture_output=True, text=True, timeout=300)
     assert res2.returncode == 0, res2.stderr
     a = pyogrio.read_dataframe(out, layer="craters")
     b = pyogrio.read_dataframe(full, layer="craters")
