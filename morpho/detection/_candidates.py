@@ -24,7 +24,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import ndimage
+from scipy import ndimage, signal
+
+from ._verify import depth_ratio_floor
 
 __all__ = ["Candidates", "find_candidates", "prepare_surface"]
 
@@ -39,6 +41,8 @@ _K = 2.0 ** (1.0 / _STEPS)
 _C = float(np.sqrt(8.0 * np.log(_K) * _K**2 / (_K**2 - 1.0)))
 # Empirical ratio of rim radius to rho* at the response maximum, measured on paraboloid bowls.
 _RADIUS_CAL = 0.95
+#: Ring-relief candidates (for non-bowl interiors) from this pyramid factor up (radius >= 20 px).
+_RING_MIN_FACTOR = 4
 
 
 def _ideal_response() -> float:
@@ -175,6 +179,33 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
     return out, sm
 
 
+def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
+    """Rim-ring minus interior mean elevation, over the depth/diameter floor; (len(radii), H, W).
+
+    A second, shape-agnostic candidate map for large craters whose interior is not a bowl
+    (central peaks, mounds, flat fill): the radial-symmetry response of such a crater can
+    cancel, but its rim still stands above its interior. Computed by FFT convolution with ring
+    and disk kernels, only on coarse pyramid levels where the images are small.
+    """
+    vf = valid.astype(np.float64)
+    zf = np.where(valid, sm, 0.0).astype(np.float64)
+    out = np.empty((radii.size,) + sm.shape)
+    for j, r in enumerate(radii):
+        n = int(np.ceil(1.2 * r))
+        yy, xx = np.mgrid[-n:n + 1, -n:n + 1]
+        rho = np.hypot(yy, xx) / r
+        ring = ((rho >= 0.85) & (rho <= 1.15)).astype(np.float64)
+        disk = (rho <= 0.6).astype(np.float64)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rim = signal.fftconvolve(zf, ring, mode="same") / signal.fftconvolve(vf, ring, mode="same")
+            inner = signal.fftconvolve(zf, disk, mode="same") / signal.fftconvolve(vf, disk, mode="same")
+        d_m = 2.0 * r * d_scale_m
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rel = (rim - inner) / (d_m * depth_ratio_floor(d_m, min_depth_ratio))
+        out[j] = np.nan_to_num(rel, nan=0.0, posinf=0.0, neginf=0.0)
+    return out
+
+
 def _ring_relief(sm, valid, rr, cc, radius):
     """Mean elevation on a circle of ``radius`` minus the centre value, at candidate pixels."""
     ang = np.linspace(0.0, 2.0 * np.pi, 12, endpoint=False)
@@ -195,7 +226,8 @@ def find_candidates(
     min_radius_px: float,
     max_radius_px: float,
     threshold: float = 0.33,
-    min_slope: float = 0.0,
+    spacing_m: float = 1.0,
+    min_depth_ratio: float = 0.0,
 ) -> Candidates:
     """Scale-space maxima of the radial-symmetry response over a Gaussian pyramid.
 
@@ -209,9 +241,9 @@ def find_candidates(
         Radius range searched, full-resolution pixels.
     threshold : float
         Minimum response (1 = ideal radial field).
-    min_slope : float
-        Minimum (rim ring - centre) elevation difference per unit diameter, in elevation units
-        per pixel: a cheap depth/diameter screen (depth/diameter x pixel size in metres).
+    spacing_m, min_depth_ratio : float
+        Pixel size (m) and the verification's depth/diameter floor: candidates whose
+        (rim ring - centre) relief is below 0.6 x that floor are dropped (a cheap screen).
 
     Returns
     -------
@@ -224,7 +256,7 @@ def find_candidates(
     while True:
         lo_full = _R_LEVEL * factor if octave else min(min_radius_px / 1.15, _R_LEVEL)
         hi_full = 2.0 * _R_LEVEL * factor
-        if lo_full > max_radius_px * 1.15 or min(level.shape) < 4.0 * _R_LEVEL:
+        if lo_full > max_radius_px * 1.15 or min(level.shape) < 2.0 * _R_LEVEL + 2:
             break
         if hi_full >= min_radius_px / 1.15:
             j0 = int(np.floor(_STEPS * np.log2(max(lo_full, 1.0) / (_R_LEVEL * factor))))
@@ -236,11 +268,20 @@ def find_candidates(
             rad_full = radii[jj] * factor * _RADIUS_CAL
             keep = (rad_full >= min_radius_px / 1.3) & (rad_full <= max_radius_px * 1.3)
             relief = _ring_relief(sm, vmask, rr, cc, radii[jj] * _RADIUS_CAL)
-            keep &= relief >= min_slope * 2.0 * rad_full
+            d_m = 2.0 * rad_full * spacing_m
+            keep &= relief >= 0.6 * depth_ratio_floor(d_m, min_depth_ratio) * d_m
             rows.append(rr[keep] * factor)
             cols.append(cc[keep] * factor)
             rads.append(rad_full[keep])
             scores.append(resp[jj[keep], rr[keep], cc[keep]])
+            if factor >= _RING_MIN_FACTOR and min_depth_ratio > 0:
+                ring = _ring_response(sm, vmask, radii, factor * spacing_m, min_depth_ratio)
+                peak = ndimage.maximum_filter(ring, size=(3, 5, 5), mode="nearest")
+                jj, rr, cc = np.nonzero((ring == peak) & (ring >= 1.0))
+                rows.append(rr * factor)
+                cols.append(cc * factor)
+                rads.append(radii[jj] * factor)
+                scores.append(np.full(jj.size, threshold))
         # Next octave: antialias then keep every second pixel; level pixel i -> full i * factor.
         level = ndimage.gaussian_filter(level, 1.0)[::2, ::2]
         vmask = ndimage.gaussian_filter(vmask.astype(np.float64), 1.0)[::2, ::2] > 0.5

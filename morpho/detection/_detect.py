@@ -113,7 +113,7 @@ def detect_craters(
     min_r, max_r = 0.5 * float(min_diameter_px), 0.5 * max_diameter_px
     filled, valid = prepare_surface(z)
     cand = find_candidates(filled, valid, min_radius_px=min_r, max_radius_px=max_r,
-                           min_slope=0.6 * min_depth_ratio * float(spacing_m))
+                           spacing_m=float(spacing_m), min_depth_ratio=min_depth_ratio)
     # Cheap first merge on the detector score: many scale-space maxima are the same bowl.
     keep = suppress_duplicates(cand.rows, cand.cols, cand.radius_px, cand.score, max_offset=0.3)
     ver = verify_candidates(z, cand.rows[keep], cand.cols[keep], cand.radius_px[keep],

@@ -167,6 +167,18 @@ def _refit(rows, cols, rad, az, rho, good, n_az):
             np.where(usable, r_fit, rad))
 
 
+def depth_ratio_floor(diameter_m, min_depth_ratio):
+    """Depth/diameter floor for a crater of ``diameter_m``: constant, then falling as D^-0.5.
+
+    Above ~10 km complex craters are shallower: d/D falls about as D^-0.5 on Mars (d = 0.25
+    D^0.49, Garvin & Frawley 1998, GRL 25, doi:10.1029/1998GL900177) and faster on the Moon
+    (d = 1.044 D^0.301, Pike 1977, from memory). The 10 km corner lies between the Mars (8 km)
+    and Moon (15 km) transition diameters.
+    """
+    d = np.maximum(np.asarray(diameter_m, dtype=np.float64), 1e-9)
+    return min_depth_ratio * np.minimum(1.0, (d / 10_000.0) ** -0.5)
+
+
 def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     """Confidence terms: roundness of the crest line, depth/diameter, depth/roughness."""
     coverage = ok.mean(axis=1)
@@ -182,7 +194,8 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     # ~10 % (outline irregularity, roughness); above 30 % the "rim" is terrain. Thresholds here
     # and below were set on synthetic scenes of morpho.synth (benchmarks/bench_detection.py).
     t_round = 1.0 - np.clip((np.nan_to_num(spread, nan=1.0) - 0.1) / 0.2, 0.0, 1.0)
-    t_depth = np.clip((ratio - 0.5 * min_depth_ratio) / (1.5 * min_depth_ratio), 0.0, 1.0)
+    m = depth_ratio_floor(2.0 * rad * spacing_m, min_depth_ratio)
+    t_depth = np.clip((ratio - 0.5 * m) / (1.5 * m), 0.0, 1.0)
     t_snr = 1.0 - np.exp(-np.clip(np.nan_to_num(snr, nan=0.0, posinf=1e6), 0.0, None) / 5.0)
     share = good.sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
     # Crests far from the fitted radius mean the refinement did not converge on this rim.
@@ -261,12 +274,13 @@ def _screen(z, rows, cols, rad, spacing_m, min_depth_ratio):
     _, _, _, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
     # Screening on what an off-centre first guess cannot spoil: depth/diameter and
     # depth/roughness, with a loose roundness bound (a 20 % centre offset spreads crest radii by
-    # ~13 %). A final confidence of 0.4 needs at least these values.
+    # ~13 %, more with a wrong radius). A final confidence of 0.4 needs at least these values.
     ratio = np.nan_to_num(terms["depth_ratio"])
     snr = np.nan_to_num(terms["snr"], posinf=1e6)
-    alive = (ratio >= 0.75 * min_depth_ratio) & (snr >= 2.5)
-    alive &= np.nan_to_num(terms["spread"], nan=1.0) < 0.2
-    rank = np.minimum(ratio / min_depth_ratio, 10.0) * (1.0 - np.exp(-snr / 5.0))
+    m = depth_ratio_floor(2.0 * rad * spacing_m, min_depth_ratio)
+    alive = (ratio >= 0.75 * m) & (snr >= 2.5)
+    alive &= np.nan_to_num(terms["spread"], nan=1.0) < 0.3
+    rank = np.minimum(ratio / m, 10.0) * (1.0 - np.exp(-snr / 5.0))
     rows, cols, rad = _refit(rows, cols, rad, az, rho, good, 16)
     return rows, cols, rad, np.where(alive, rank + 1e-6, 0.0)
 
