@@ -150,3 +150,18 @@ def test_per_crater_spacing_and_transform():
     x, y = tr @ (50.5, 50.5)  # centre of pixel (row 50, col 50)
     one = measure_crater(z, None, (x, y), 45.0, transform=tr, n_boot=0)
     assert one["diameter_m"] == pytest.approx(t.diameter_m[1], rel=1e-6)
+
+
+@pytest.mark.parametrize(("radius_px", "rel"), [(25.0, 0.1), (100.0, 0.02)])  # pit 7 or 30 px wide
+def test_flat_floor_with_central_pit(radius_px, rel):
+    # A cosine pit (morpho.shapes.crater_profile with a negative peak) of base radius 0.15 R
+    # and depth 0.3 d below a flat floor of radius 0.5 R: the pit depth is 0.3 d and the
+    # crater depth (rim to floor, Pike 1977) excludes the pit (derived).
+    f, d = 0.5, 0.3 * radius_px * SPACING
+    pit = 0.3 * d
+    prof = flat_with_peak(d, 0.05 * radius_px * SPACING, f, -pit, 0.15)
+    t = _measure(prof, radius_px, noise=0.005 * d, seed=2)
+    assert t.central_pit_present and not t.central_peak_present
+    assert t.central_pit_depth_m == pytest.approx(pit, rel=rel)
+    assert t.depth_m == pytest.approx(d, rel=rel)
+    assert t.floor_diameter_fraction == pytest.approx(f + 0.05 * (1 - f), rel=max(rel, 0.04))

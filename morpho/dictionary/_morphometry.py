@@ -85,8 +85,10 @@ FIELDS = (
           _MEAN + "2 x the radius where the peak falls to 10 % of its height above the floor",
           "Hale & Grieve 1982, JGR 87(S1):A65", has_error=True),
     Field("central_pit_present", "", "bool",
-          "The centre lies more than 10 % of the depth below the inner floor or peak top.",
-          _MEAN + "maximum within min(0.3 R, floor radius) minus the mean within 0.05 R", _COMMON),
+          "The centre lies more than 10 % of the depth below a flat inner floor.",
+          _MEAN + "median on 0.2-0.4 R minus the lowest value inside 0.2 R, if that ring is flat "
+          "(10-90 % spread < a quarter of the pit depth); the pit is then left out of the floor",
+          _COMMON),
     Field("central_pit_depth_m", "m", "float64", "Central-pit depth below its surroundings (0 if absent).",
           "as central_pit_present", "Barlow 2010, GSA Spec. Pap. 465:15, central pits (from memory)", has_error=True),
     Field("interior_shape_exponent", "1", "float64",

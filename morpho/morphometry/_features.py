@@ -20,6 +20,7 @@ from ._geometry import (
     fit_ellipse,
     harmonic_amplitudes,
     interp_last,
+    nanquantile_last,
     wquantile,
 )
 
@@ -34,6 +35,8 @@ FLOOR_LEVEL = 0.05
 CREST_STEP = 0.1
 #: Central peak / pit counted as present above this share of the depth (choice made here).
 FEATURE_THRESHOLD = 0.1
+#: Radius (crater radii) within which a central pit is sought.
+PIT_ZONE = 0.2
 
 
 def crest_shape(zd, r_norm, crest_r, crest_z, radius_m):
@@ -172,6 +175,25 @@ def _floor_level(m, r_norm, interior, floor_min, depth_min):
     return np.where(ok, fitted, floor_min)
 
 
+def _central_pit(m, r_norm, rim_z):
+    """Depth of a central pit and whether one is present, shape (...) each.
+
+    Pit depth = median of the mean profile on the ring PIT_ZONE..2 PIT_ZONE minus its lowest
+    value inside PIT_ZONE. Present when deeper than 10 % of the (pit-inclusive) depth and the
+    ring is flat (10-90 % spread below a quarter of the pit depth; a bowl or cone is not).
+    """
+    inner = r_norm <= PIT_ZONE
+    ring = (r_norm > PIT_ZONE) & (r_norm <= 2 * PIT_ZONE)
+    low = np.where(inner & np.isfinite(m), m, np.inf).min(-1)
+    vals = m[..., ring]
+    med = nanquantile_last(vals, 0.5)
+    spread = nanquantile_last(vals, 0.9) - nanquantile_last(vals, 0.1)
+    pit = np.maximum(med - low, 0.0)
+    depth_all = rim_z - np.where(r_norm <= 0.9, np.where(np.isfinite(m), m, np.inf), np.inf).min(-1)
+    present = (pit > FEATURE_THRESHOLD * depth_all) & (spread < 0.25 * pit)
+    return np.where(np.isfinite(pit), pit, 0.0), present
+
+
 def profile_features(m, r_norm, radius_m, rim_z):
     """Features of the azimuth-averaged detrended profile.
 
@@ -203,6 +225,10 @@ def profile_features(m, r_norm, radius_m, rim_z):
     interior = r_norm <= 0.9
     i_crest = np.full(m.shape[:-1], int(np.searchsorted(r_norm, 1.0)))
     with np.errstate(invalid="ignore", divide="ignore"):
+        # Central pit: a depression in the middle of an otherwise flat inner floor. Once
+        # found, it is masked so that floor and depth refer to the floor around it.
+        pit, pit_present = _central_pit(m, r_norm, rim_z)
+        m = np.where(pit_present[..., None] & (r_norm <= PIT_ZONE), np.nan, m)
         m_in = np.where(interior & np.isfinite(m), m, np.inf)
         i_floor = np.argmin(m_in, axis=-1)
         floor_min = np.take_along_axis(m, i_floor[..., None], -1)[..., 0]
@@ -237,15 +263,6 @@ def profile_features(m, r_norm, radius_m, rim_z):
         base_r = np.where(has_base, (prev + np.where(np.isfinite(frac), frac, 1.0)) * dr, np.nan)
         peak_present = peak_h > FEATURE_THRESHOLD * depth
         basal_width = np.where(peak_present, 2.0 * base_r * radius_m, 0.0)
-
-        # Central pit: the centre lower than the highest point of the inner floor/peak.
-        centre = r_norm <= max(0.05, dr)
-        ok_c = centre & np.isfinite(m)
-        m_centre = np.where(ok_c, m, 0.0).sum(-1) / ok_c.sum(-1)
-        ring = (r_norm <= np.minimum(0.3, np.maximum(r_fl, dr))[..., None])
-        ring_max = np.where(ring & np.isfinite(m), m, -np.inf).max(-1)
-        pit = np.maximum(ring_max - m_centre, 0.0)
-        pit_present = pit > FEATURE_THRESHOLD * depth
 
         # Bowl exponent: m - floor = a (r/R)^n between 0.3 and 0.9 R.
         fit_zone = (r_norm >= 0.3) & (r_norm <= 0.9)
