@@ -23,6 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from morpho.morphometry._geometry import fit_circle
 from morpho.morphometry.profiles import sample_radial_profiles
 
 from ._merge import suppress_duplicates
@@ -123,19 +124,6 @@ def _crests(d, r_norm):
     return rho, height, found & finite, finite
 
 
-def _circle_fit(dr, dc, w):
-    """Weighted Kasa fit per crater; dr, dc, w shape (n, A). Returns centre offsets and radius."""
-    basis = np.stack([dr, dc, np.ones_like(dr)], axis=-1)
-    rhs = dr * dr + dc * dc
-    ata = np.einsum("nai,naj,na->nij", basis, basis, w)
-    atb = np.einsum("nai,na,na->ni", basis, rhs, w)
-    ata += 1e-9 * (np.trace(ata, axis1=1, axis2=2)[:, None, None] + 1.0) * np.eye(3)[None]
-    sol = np.linalg.solve(ata, atb[..., None])[..., 0]
-    a, b = sol[:, 0] / 2.0, sol[:, 1] / 2.0
-    r2 = sol[:, 2] + a * a + b * b
-    return a, b, np.sqrt(np.clip(r2, 0.0, None))
-
-
 def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII):
     """One round of sampling: crest geometry and relief for every candidate."""
     prof = sample_radial_profiles(z, rows, cols, radius, n_azimuths=n_az, n_radii=n_radii,
@@ -159,10 +147,11 @@ def _refit(rows, cols, rad, az, rho, good, n_az):
         med = _nanreduce(np.nanmedian, np.where(good, rho, np.nan), axis=1)
     # Crests far from the typical one are neighbours' rims or terrain, not this rim.
     w = (good & (np.abs(rho - med[:, None]) < 0.25 * med[:, None])).astype(np.float64)
-    dist = rho * rad[:, None]
-    a, b, r_fit = _circle_fit(-dist * np.sin(az)[None, :], dist * np.cos(az)[None, :], w)
-    usable = (w.sum(axis=1) >= 0.25 * n_az) & np.isfinite(r_fit)
-    usable &= (np.hypot(a, b) < 0.5 * rad) & (r_fit > 0.6 * rad) & (r_fit < 1.6 * rad)
+    dist = np.where(w > 0, rho * rad[:, None], np.nan)
+    b, a, r_fit = fit_circle(dist * np.cos(az)[None, :], -dist * np.sin(az)[None, :])
+    usable = (w.sum(axis=1) >= 0.25 * n_az) & np.isfinite(r_fit) & np.isfinite(a) & np.isfinite(b)
+    with np.errstate(invalid="ignore"):
+        usable &= (np.hypot(a, b) < 0.5 * rad) & (r_fit > 0.6 * rad) & (r_fit < 1.6 * rad)
     return (np.where(usable, rows + a, rows), np.where(usable, cols + b, cols),
             np.where(usable, r_fit, rad))
 
