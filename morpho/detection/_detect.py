@@ -55,9 +55,11 @@ def detect_craters(
     """Find craters in a DEM tile.
 
     Candidates are scale-space maxima of a radial gradient-symmetry transform computed on a
-    Gaussian pyramid (Loy & Zelinsky 2003; Lindeberg 1998); each candidate is then verified and
-    refined on radial elevation profiles (rim crest per azimuth, least-squares circle through
-    the crests, Kasa 1976) and duplicates across scales are merged by non-maximum suppression.
+    Gaussian pyramid (Loy & Zelinsky 2003; Lindeberg 1998), plus, on coarse octaves, maxima of
+    rim-ring minus interior relief (for central peaks and filled floors). Each candidate is then
+    verified and refined on radial elevation profiles (rim crest per azimuth, least-squares
+    circle through the crests, Kasa 1976); duplicates across scales are merged by non-maximum
+    suppression.
     The elevation is used directly (no shading); a best-fit plane is removed first and every
     profile is detrended by its own surroundings, so a constant offset or a regional tilt does
     not change the result. Nodata (NaN) is never interpolated into a measurement: profiles stop
@@ -69,16 +71,17 @@ def detect_craters(
     z : array_like, shape (H, W)
         Elevation in metres on a square grid, NaN for no data.
     spacing_m : float
-        Pixel size in metres (validated; the method itself works in pixels).
+        Pixel size in metres (for the depth/diameter floor; the geometry works in pixels).
     min_diameter_px, max_diameter_px : float
         Rim-crest diameter range in pixels. ``max_diameter_px`` defaults to 0.8 x the shorter
         side of the tile.
     min_confidence : float
         Craters rated below this are dropped.
     min_depth_ratio : float
-        Depth/diameter ratio at which the depth part of the confidence reaches 1/3; candidates
-        below half of it are dropped. Fresh simple craters have ~0.2 (Pike 1974, GRL 1:291);
-        0.02 keeps strongly degraded ones.
+        Depth/diameter floor for craters up to 10 km across (falling as D^-0.5 above, as
+        complex craters are shallower; Garvin & Frawley 1998). The depth part of the confidence
+        is 0 at half the floor and 1 at twice it. Fresh simple craters have ~0.2 (Pike 1974,
+        GRL 1:291); 0.02 keeps strongly degraded ones.
     min_rim_coverage : float
         Minimum share of profile azimuths whose rim-crest window lies on valid data.
     n_azimuths : int

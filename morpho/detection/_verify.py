@@ -4,9 +4,12 @@ Each candidate is sampled on a polar grid (:func:`morpho.morphometry.profiles.sa
 never across nodata). A plane fitted to the surroundings (1.3-2 radii, with one round of outlier
 rejection) removes the regional slope. On every azimuth the rim crest is the highest point between
 0.5 and 1.5 radii; a least-squares circle through the crests (Kasa 1976) refines the centre and the
-rim-crest radius, twice. The confidence combines the share of azimuths with a crest above the
-floor, the roundness of the crest line, the depth relative to the surrounding roughness, and the
-detector's symmetry score.
+rim-crest radius. The work is a cascade so that most candidates cost little: a coarse pass
+(16 azimuths) screens on depth/diameter and depth/roughness and refits; candidates that converged
+on the same rim are merged; one refinement pass and a final rating follow at full resolution.
+The confidence is the product of: the share of azimuths with a crest above the floor, the
+roundness of the crest line, the depth/diameter ratio against a floor, the depth against the
+surrounding roughness, and the agreement of the crests with the fitted radius.
 
 References
 ----------
@@ -206,9 +209,10 @@ def verify_candidates(
 ) -> Verified:
     """Refine centre and rim-crest radius of each candidate and rate it.
 
-    A coarse first pass (24 azimuths) drops candidates shallower than half ``min_depth_ratio``
-    or with relief below the surrounding roughness; survivors get two refinement passes at
-    ``n_azimuths`` and a final rating.
+    A coarse first pass (16 azimuths) drops candidates shallower than 0.75 x the depth/diameter
+    floor (:func:`depth_ratio_floor`) or with relief below 2.5 x the surrounding roughness;
+    duplicates are merged; survivors get one refinement pass at ``n_azimuths`` and a final
+    rating.
 
     Parameters
     ----------
