@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from skimage.feature import canny
 from skimage.transform import hough_circle, hough_circle_peaks
 
@@ -205,3 +207,18 @@ def test_output_is_a_dataframe_sorted_by_confidence():
     assert isinstance(df, pd.DataFrame) and len(df) == 2
     assert np.all(np.diff(df.detection_confidence.to_numpy()) <= 0)
     assert df.detection_confidence.between(0, 1).all() and df.rim_coverage.between(0, 1).all()
+
+
+@settings(max_examples=8, deadline=None)
+@given(offset=st.floats(-2e4, 2e4), gx=st.floats(-0.3, 0.3), gy=st.floats(-0.3, 0.3))
+def test_property_offset_and_tilt_do_not_move_the_crater(offset, gx, gy):
+    # Property (common practice for DEM measurements): adding a constant or a plane of slope
+    # up to 0.3 m/m must leave centre and rim diameter unchanged.
+    z = bowl((96, 96), 47.6, 49.2, 14.0)
+    yy, xx = np.mgrid[0:96, 0:96]
+    ref = detect_craters(z, SPACING).iloc[0]
+    got = detect_craters(z + offset + SPACING * (gx * xx + gy * yy), SPACING)
+    assert len(got) == 1
+    hit = got.iloc[0]
+    assert abs(hit.row - ref.row) < 0.05 and abs(hit.col - ref.col) < 0.05
+    assert abs(hit.radius_px - ref.radius_px) < 0.05
