@@ -108,6 +108,6 @@ FIELDS = (
           "Degradation state: diffusivity x time / D^2 of the diffused fresh profile that fits best "
           "(NaN unless a body is given).",
           "least squares over 0-1.5 R between the mean profile and the body's fresh profile "
-          "(morpho.shapes) diffused in time; grid 1e-5..0.5 with parabolic refinement",
+          "(morpho.shapes) diffused in time; grid 1e-5..0.25 with parabolic refinement; reliable above ~4.5 / pixels_per_diameter^2",
           "Fassett & Thomson 2014, JGR Planets 119:2255", has_error=True),
 )

@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["fit_circle", "fit_ellipse", "harmonic_amplitudes", "wquantile", "wsum",
-           "nanquantile_last", "interp_last"]
+           "nanquantile_last", "interp_last", "replicate_std"]
 
 
 def _solve_batched(a, b):
@@ -256,3 +256,23 @@ def interp_last(a, idx):
     vhi = np.take_along_axis(a, lo + 1, -1)
     out = vlo + f * (vhi - vlo)
     return np.where(fin & (i >= 0) & (i <= n - 1), out, np.nan)
+
+
+def replicate_std(samples):
+    """Sample standard deviation over replicates (axis 1) ignoring NaN; NaN if < 2 values.
+
+    Parameters
+    ----------
+    samples : ndarray, shape (n, b)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+    """
+    b = np.asarray(samples, dtype=float)
+    fin = np.isfinite(b)
+    nb = fin.sum(1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mu = np.where(fin, b, 0.0).sum(1) / nb
+        var = np.where(fin, (b - mu[:, None]) ** 2, 0.0).sum(1) / (nb - 1)
+    return np.where(nb > 1, np.sqrt(var), np.nan)

@@ -7,6 +7,7 @@ import pandas as pd
 
 from ._degradation import degradation_columns
 from ._features import azimuth_features, crest_shape, profile_features
+from ._geometry import replicate_std
 from ._refine import (
     MIN_COVERAGE,
     detrended_profiles,
@@ -75,12 +76,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
         azb = azimuth_features(theta, crest_r_m, crest.z, curv, angle, counts)
         boot = _combine(azb, profile_features(boot_prof, r_norm, radius_m[:, None], azb["rim_z"]))
         for name in FEATURES_WITH_ERROR:
-            b = np.asarray(boot[name], dtype=float)
-            nb = np.isfinite(b).sum(1)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                mu = np.where(np.isfinite(b), b, 0.0).sum(1) / nb
-                var = np.where(np.isfinite(b), (b - mu[:, None]) ** 2, 0.0).sum(1) / (nb - 1)
-            errs[f"{name}_err"] = np.where(nb > 1, np.sqrt(var), np.nan)
+            errs[f"{name}_err"] = replicate_std(boot[name])
     out = pd.DataFrame({"row": rows, "col": cols, "radius_px": rad})
     for name, val in point.items():
         out[name] = val
