@@ -162,11 +162,12 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
 
     sig = radii / _C
     out = np.empty((radii.size,) + level.shape, dtype=np.float32)
-    prev = ndimage.gaussian_filter(div, sig[0], truncate=3.0)
+    # 2.5 sigma keeps 98.8 % of each Gaussian's weight; the DoG only needs its shape.
+    prev = ndimage.gaussian_filter(div, sig[0], truncate=2.5)
     s_prev = sig[0]
     for j, s in enumerate(sig):
         s2 = s * _K
-        nxt = ndimage.gaussian_filter(prev, np.sqrt(s2**2 - s_prev**2), truncate=3.0)
+        nxt = ndimage.gaussian_filter(prev, np.sqrt(s2**2 - s_prev**2), truncate=2.5)
         np.subtract(prev, nxt, out=out[j])
         out[j] *= np.float32(s / _IDEAL)
         if not all_valid:
@@ -177,6 +178,19 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
         prev, s_prev = nxt, s2
         # sig[j+1] == s2 by construction, so ``prev`` is already G(sig[j+1]) * div.
     return out, sm
+
+
+def _scale_space_maxima(resp: np.ndarray, threshold: float):
+    """Indices (scale, row, col) of 3 x 3 x 3 local maxima above ``threshold``.
+
+    A 2-D maximum filter per scale, then a comparison with the filtered neighbours in scale:
+    the same set as a 3-D maximum filter, with one separable pass fewer.
+    """
+    flat = np.stack([ndimage.maximum_filter(layer, size=3, mode="nearest") for layer in resp])
+    up = np.concatenate([flat[1:], flat[-1:]])
+    down = np.concatenate([flat[:1], flat[:-1]])
+    is_max = (resp >= flat) & (resp >= up) & (resp >= down) & (resp > threshold)
+    return np.nonzero(is_max)
 
 
 def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
@@ -263,8 +277,7 @@ def find_candidates(
             j = np.arange(j0, _STEPS)
             radii = _R_LEVEL * _K**j  # level pixels
             resp, sm = _level_response(level, vmask, radii)
-            peak = ndimage.maximum_filter(resp, size=(3, 3, 3), mode="nearest")
-            jj, rr, cc = np.nonzero((resp == peak) & (resp > threshold))
+            jj, rr, cc = _scale_space_maxima(resp, threshold)
             rad_full = radii[jj] * factor * _RADIUS_CAL
             keep = (rad_full >= min_radius_px / 1.3) & (rad_full <= max_radius_px * 1.3)
             relief = _ring_relief(sm, vmask, rr, cc, radii[jj] * _RADIUS_CAL)
