@@ -47,6 +47,7 @@ def _degraded(diameter_m, body, kappa_t_over_d2, *, noise=0.0, seed=0, spacing=S
         ("moon", 1000.0, 0.0165, 0.0, 20.0),
         ("moon", 1000.0, 0.004, 1.0, 20.0),  # 1 m noise on a ~200 m deep crater
         ("mars", 2000.0, 0.004, 0.0, 40.0),  # Garvin & Frawley 1998 fresh shape
+        ("moon", 30000.0, 0.003, 0.0, 300.0),  # complex: flat floor, central peak (Pike 1977)
     ],
 )
 def test_kappa_t_recovered_within_20_percent(body, diameter_m, kt_d2, noise, spacing):

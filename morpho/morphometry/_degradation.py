@@ -14,7 +14,7 @@ import numpy as np
 from ..bodies import Body, get_body
 from ..shapes import diffuse_radial_profile, fresh_impact_profile
 from ._detrend import plain_level
-from ._geometry import replicate_std
+from ._geometry import nanquantile_last, replicate_std
 from ._refine import find_crest, sharpen_crest
 
 __all__ = ["fit_degradation", "degradation_columns", "KT_GRID"]
@@ -51,7 +51,10 @@ def _model_table(diameter_m, body, r_norm):
 
 
 def _best_kt(misfit, crest):
-    """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt), per measured D^2."""
+    """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt).
+
+    Returns ``(kappa t / D^2 per measured D, crest shift c)``, shapes (...) each.
+    """
     k = np.argmin(np.where(np.isfinite(misfit), misfit, np.inf), axis=-1)
     lg = np.log(np.where(KT_GRID > 0, KT_GRID, KT_GRID[1] / 3.0))
     kc = np.clip(k, 1, KT_GRID.size - 2)
@@ -65,7 +68,37 @@ def _best_kt(misfit, crest):
     best = np.where((k == 0) | (k == KT_GRID.size - 1), KT_GRID[k], np.exp(x))
     # kappa t is one number; per measured (crest) diameter D = c * D0 the ratio is / c^2.
     c = np.interp(np.log(np.maximum(best, KT_GRID[1] / 3.0)), lg, crest)
-    return np.where(np.isfinite(misfit).any(-1), best / (c * c), np.nan)
+    found = np.isfinite(misfit).any(-1)
+    return np.where(found, best / (c * c), np.nan), np.where(found, c, np.nan)
+
+
+def _bins(dia):
+    ok = np.isfinite(dia) & (dia > 0)
+    out = np.full(dia.shape, -1)
+    out[ok] = np.round(np.log(dia[ok]) / _BIN).astype(int)
+    return out
+
+
+def _fit_pass(obs_all, dia_shape, body, r_norm, zone):
+    """Best fit per crater/replicate with model tables chosen by ``dia_shape`` bins."""
+    out = np.full(obs_all.shape[:2], np.nan)
+    shift = np.full(obs_all.shape[:2], np.nan)
+    bins = _bins(dia_shape)
+    for key in np.unique(bins[bins >= 0]):
+        sel = bins == key
+        table, crest = _model_table(float(np.exp(key * _BIN)), body, r_norm)
+        table = table[:, zone]  # (k, m)
+        obs = obs_all[sel]  # (s, b, m)
+        good = np.isfinite(obs)
+        g = good.astype(float)
+        o = np.where(good, obs, 0.0)
+        # sum_m g (o - t)^2 expanded into matrix products: no (s, b, k, m) temporary.
+        sse = (o * o).sum(-1)[..., None] - 2.0 * (o @ table.T) + g @ (table * table).T
+        with np.errstate(invalid="ignore", divide="ignore"):
+            misfit = np.maximum(sse, 0.0) / good.sum(-1)[..., None]
+        misfit = np.where(good.sum(-1)[..., None] >= 5, misfit, np.nan)
+        out[sel], shift[sel] = _best_kt(misfit, crest)
+    return out, shift
 
 
 def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
@@ -107,25 +140,16 @@ def fit_degradation(r_norm, profile_m, diameter_m, body: str | Body):
     squeeze = prof.ndim == 2
     if squeeze:
         prof = prof[:, None, :]
-    out = np.full(prof.shape[:2], np.nan)
     zone = (r_norm >= FIT_RANGE[0]) & (r_norm <= FIT_RANGE[1])
-    ok = np.isfinite(dia) & (dia > 0)
-    bins = np.full(dia.shape, -1)
-    bins[ok] = np.round(np.log(dia[ok]) / _BIN).astype(int)
-    for key in np.unique(bins[ok]):
-        sel = bins == key
-        table, crest = _model_table(float(np.exp(key * _BIN)), b, r_norm)
-        table = table[:, zone]  # (k, m)
-        obs = prof[sel][..., zone] / dia[sel][:, None, None]  # (s, b, m)
-        good = np.isfinite(obs)
-        g = good.astype(float)
-        o = np.where(good, obs, 0.0)
-        # sum_m g (o - t)^2 expanded into matrix products: no (s, b, k, m) temporary.
-        sse = (o * o).sum(-1)[..., None] - 2.0 * (o @ table.T) + g @ (table * table).T
-        with np.errstate(invalid="ignore", divide="ignore"):
-            misfit = np.maximum(sse, 0.0) / good.sum(-1)[..., None]
-        misfit = np.where(good.sum(-1)[..., None] >= 5, misfit, np.nan)
-        out[sel] = _best_kt(misfit, crest)
+    obs_all = prof[..., zone] / dia[:, None, None]
+    # Pass 1 takes the fresh shape of the measured diameter; diffusion moved the crest out
+    # by c, so pass 2 takes the shape of the initial diameter D / c (matters for complex
+    # craters, whose fresh shape changes with D).
+    out, shift = _fit_pass(obs_all, dia, b, r_norm, zone)
+    initial = dia / nanquantile_last(shift, 0.5)
+    redo = np.isfinite(initial) & (_bins(initial) != _bins(dia))
+    if redo.any():
+        out[redo], _ = _fit_pass(obs_all[redo], initial[redo], b, r_norm, zone)
     return out[:, 0] if squeeze else out
 
 
