@@ -129,6 +129,11 @@ def test_columns_declared_and_nodata_handling():
     t = measure_craters(z, 1.0, [60.0, 60.0], [60.0, 400.0], [20.0, 10.0], n_boot=10)
     extra = set(t.columns) - set(FIELDS) - {"row", "col", "radius_px"}
     assert not extra
+    from morpho.dictionary import _morphometry
+
+    declared = {f.name for f in _morphometry.FIELDS}
+    declared |= {f"{f.name}_err" for f in _morphometry.FIELDS if f.has_error}
+    assert declared <= set(t.columns), declared - set(t.columns)
     assert 0.4 < t.rim_coverage[0] < 0.6
     assert t.measure_status[0] == "ok"
     assert t.depth_m[0] == pytest.approx(16.0, rel=0.05)  # measured from the valid half
