@@ -132,6 +132,18 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         ``row, col, radius_px`` (refined) plus the morphometry columns declared in
         :mod:`morpho.dictionary._morphometry` and the core columns ``diameter_m(_err)``,
         ``pixels_per_diameter``, ``rim_coverage``, ``measure_status``. Input order kept.
+        ``measure_status`` is "ok" or one of "no_valid_data" (no DEM samples),
+        "no_rim_crest" (no crest on any azimuth), "low_rim_coverage" (crest on < 50 % of
+        azimuths; values still come from the valid ones), "fit_diverged", "no_depression",
+        "too_small" (< 5 px across). Values are measured from valid samples only; nothing
+        is filled in.
+
+    Notes
+    -----
+    Cost: about 2 s per 1,000 craters (n_boot = 50) on one core of a loaded 2-core
+    machine, dominated by the bilinear sampling (``benchmarks/bench_morphometry.py``).
+    Bootstrap replicates are weighted sums (one matrix product each batch), so ``n_boot``
+    adds little.
 
     References
     ----------
