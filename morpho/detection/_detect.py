@@ -34,7 +34,8 @@ def _check(z, spacing_m, min_diameter_px, max_diameter_px):
         raise InputError(f"min_diameter_px must be >= 4 pixels; got {min_diameter_px!r}.",
                          fix="craters below ~8 pixels across cannot be told from noise; use >= 8.")
     if max_diameter_px is None:
-        max_diameter_px = 0.8 * min(z.shape)
+        # A tile too small for the smallest crater simply has none.
+        max_diameter_px = max(0.8 * min(z.shape), float(min_diameter_px) + 1.0)
     if not max_diameter_px > min_diameter_px:
         raise InputError(f"max_diameter_px ({max_diameter_px!r}) must exceed min_diameter_px "
                          f"({min_diameter_px!r}).", fix="widen the diameter range.")
