@@ -7,6 +7,7 @@ matplotlib's Agg canvas (no display, no global pyplot state).
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import shapely
@@ -79,7 +80,7 @@ def load_relief(dem_path, crs):
         x, y = tile.to_source(rr, cc)
         relief["x"], relief["y"] = np.asarray(x), np.asarray(y)
     return (relief,
-            f"Shaded relief of {getattr(tile.info, 'path', dem_path)!s} (sun azimuth 315 deg, "
+            f"Shaded relief of {Path(dem_path).name} (sun azimuth 315 deg, "
             "elevation 45 deg, no vertical exaggeration).")
 
 
