@@ -205,3 +205,25 @@ def test_map_colours_follow_verdict_and_p_impact():
     edges = map_figure(craters, colour_by="verdict").axes[0].collections[0].get_edgecolor()
     for verdict, rgba in zip(craters["verdict"], edges, strict=True):
         np.testing.assert_allclose(rgba[:3] * 255, VERDICT_COLOURS[verdict], atol=0.5)
+
+
+def test_counted_area_is_the_geodesic_area_of_the_footprint():
+    """Area of a lon/lat box on a sphere: R^2 (lon2 - lon1) (sin lat2 - sin lat1)
+    (exact spherical zone formula, e.g. Snyder 1987, USGS Prof. Paper 1395)."""
+    import geopandas as gpd
+    import pandas as pd
+
+    from morpho.outputs._figstats import counted_area_m2
+
+    radius = 1_737_400.0
+    crs = pyproj.CRS.from_proj4(f"+proj=longlat +R={radius} +no_defs +type=crs")
+    box = shapely.segmentize(shapely.box(30.0, 10.0, 32.0, 12.0), 0.01)  # edges follow parallels
+    fp = gpd.GeoDataFrame({"name": ["valid"]}, geometry=[box], crs=crs)
+    area, note = counted_area_m2(fp, pd.DataFrame())
+    expected = radius**2 * np.deg2rad(2.0) * (np.sin(np.deg2rad(12.0)) - np.sin(np.deg2rad(10.0)))
+    assert area == pytest.approx(expected, rel=1e-4)
+    assert "geodesic" in note
+    # the same box projected to a local stereographic plane gives the same ground area
+    stere = pyproj.CRS.from_proj4(f"+proj=stere +lat_0=11 +lon_0=31 +R={radius} +units=m +type=crs")
+    area2, _ = counted_area_m2(fp.to_crs(stere), pd.DataFrame())
+    assert area2 == pytest.approx(expected, rel=1e-3)
