@@ -140,6 +140,8 @@ def test_columns_declared_and_nodata_handling():
     assert t.measure_status[1] == "no_valid_data" and np.isnan(t.depth_m[1])
     empty = measure_craters(z, 1.0, [], [], [], n_boot=10)
     assert empty.empty and list(empty.columns) == list(t.columns)
+    no_boot = measure_craters(z, 1.0, [60.0], [60.0], [20.0], n_boot=0)
+    assert list(no_boot.columns) == list(t.columns) and np.isnan(no_boot.depth_m_err[0])
     flat = measure_craters(np.zeros((60, 60)), 1.0, [30.0], [30.0], [8.0], n_boot=0)
     assert flat.measure_status[0] == "no_rim_crest"  # nothing to measure on a flat plain
 

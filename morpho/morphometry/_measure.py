@@ -55,15 +55,15 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     radius_m = rad * spacing
     crest_r_m = crest.r_norm * radius_m[:, None]
     curv, angle = crest_shape(zd, r_norm, crest.r_norm, crest.z, radius_m)
-    theta = az
     valid = np.isfinite(zd)
     zf = np.where(valid, zd, 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean_prof = zf.sum(1) / valid.sum(1)
-    az_point = azimuth_features(theta, crest_r_m, crest.z, curv, angle)
+    az_point = azimuth_features(az, crest_r_m, crest.z, curv, angle)
     point = _combine(az_point, profile_features(mean_prof, r_norm, radius_m, az_point["rim_z"]))
     n_boot = boot_idx.shape[0]
-    errs = {}
+    # Without replicates the _err columns stay, as NaN: one schema whatever n_boot is.
+    errs = {f"{name}_err": np.full(rows.size, np.nan) for name in FEATURES_WITH_ERROR}
     boot_prof = None
     if n_boot > 1:
         # Resampling azimuths with replacement = integer weights per azimuth; the same
@@ -73,7 +73,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
         with np.errstate(invalid="ignore", divide="ignore"):
             boot_prof = (np.matmul(zf.transpose(0, 2, 1), counts.T)
                          / np.matmul(valid.transpose(0, 2, 1).astype(float), counts.T)).transpose(0, 2, 1)
-        azb = azimuth_features(theta, crest_r_m, crest.z, curv, angle, counts)
+        azb = azimuth_features(az, crest_r_m, crest.z, curv, angle, counts)
         boot = _combine(azb, profile_features(boot_prof, r_norm, radius_m[:, None], azb["rim_z"]))
         for name in FEATURES_WITH_ERROR:
             errs[f"{name}_err"] = replicate_std(boot[name])
@@ -115,7 +115,7 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
     n_azimuths : int
         Profiles per crater (default 64).
     n_boot : int
-        Bootstrap resamples (default 50; 0 or 1 disables the ``_err`` columns' values).
+        Bootstrap resamples (default 50; 0 or 1 leaves the ``_err`` columns NaN).
     seed : int
         Seed of the :class:`numpy.random.Generator` drawing the resamples.
     refine : bool
