@@ -206,6 +206,13 @@ def add_scaling_columns(df: pd.DataFrame, body, *, source: str | None = None) ->
     ``expected_rim_height_m``, ``rim_height_residual_log10``, ``scaling_regime``,
     ``scaling_out_of_range``, ``scaling_law`` and ``expects_central_peak``.
     Residuals are NaN where a value is missing or not positive.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = add_scaling_columns(pd.DataFrame({"diameter_m": [10_000.0], "depth_m": [1003.0]}), "moon")
+    >>> round(float(t.depth_residual_log10[0]), 2), t.scaling_law[0]  # half the Pike 1977 depth
+    (-0.3, 'pike1977')
     """
     if "diameter_m" not in df:
         raise InputError("add_scaling_columns needs a 'diameter_m' column.",

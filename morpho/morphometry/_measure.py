@@ -216,6 +216,18 @@ def measure_crater(z, spacing_m, center_rc, radius_px, *, transform=None, **kwar
     -------
     dict
         Column name -> value for the crater.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from affine import Affine
+    >>> yy, xx = np.mgrid[0:100, 0:100]
+    >>> r = np.hypot(yy - 50.0, xx - 50.0) / 20.0
+    >>> z = np.where(r <= 1, 8.0 * r**2 - 6.0, 2.0 * np.maximum(r, 1) ** -3)
+    >>> tr = Affine(10.0, 0.0, 5000.0, 0.0, -10.0, 9000.0)  # 10 m pixels
+    >>> f = measure_crater(z, None, tr @ (50.5, 50.5), 200.0, transform=tr, n_boot=0)
+    >>> round(f["diameter_m"], -1), round(f["depth_m"], 1)
+    (400.0, 8.0)
     """
     if transform is not None:
         a, b, _, d, e, _ = tuple(transform)[:6]
