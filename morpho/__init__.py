@@ -35,6 +35,8 @@ _API = {
     "read_survey": "morpho.outputs",
     "export_features": "morpho.outputs",
     "build_report": "morpho.outputs",
+    "render_preview_png": "morpho.outputs",
+    "run_provenance": "morpho.outputs",
     "get_body": "morpho.bodies",
     "CAVEATS": "morpho.caveats",
 }

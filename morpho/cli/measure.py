@@ -29,7 +29,6 @@ def command(ctx, dem, crater_list, output, overwrite, body, band, pixel_size, z_
     """
     from ..ingest import open_dem
     from ..ingest.craterlist import read_crater_list
-    from ..outputs import write_geopackage
     from ..pipeline import measure
 
     out = check_output(output, overwrite)
@@ -43,8 +42,7 @@ def command(ctx, dem, crater_list, output, overwrite, body, band, pixel_size, z_
     result = measure(dem, listed.craters, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
                      z_offset=z_offset, tile_size=tile_size, n_boot=n_boot, seed=seed, model=model,
                      workers=workers, scheduler=scheduler, progress=not quiet, bad_rows=listed.bad_rows)
-    write_geopackage(out, result.craters, population=result.population, chains=result.chains,
-                     footprint=result.footprint, run=result.run, overwrite=overwrite)
+    result.write(out, overwrite=overwrite)
     if not quiet:
         px = int(result.run.get("raster_rows", 0) or 0) * int(result.run.get("raster_cols", 0) or 0)
         print_summary(result, Path(out), time.perf_counter() - t0, px)

@@ -37,7 +37,6 @@ def command(ctx, dem, output, overwrite, body, band, pixel_size, z_scale, z_offs
     Per-tile results are kept in OUTPUT.morpho-run/ until the GeoPackage is written, so an
     interrupted survey can be continued with --resume.
     """
-    from ..outputs import write_geopackage
     from ..pipeline import survey
 
     out = check_output(output, overwrite)
@@ -50,8 +49,7 @@ def command(ctx, dem, output, overwrite, body, band, pixel_size, z_scale, z_offs
         n_boot=n_boot, seed=seed, model=model, workers=workers, scheduler=scheduler,
         run_dir=run_dir, resume=resume, progress=not quiet,
     )
-    write_geopackage(out, result.craters, population=result.population, chains=result.chains,
-                     footprint=result.footprint, run=result.run, overwrite=overwrite)
+    result.write(out, overwrite=overwrite)
     if preview:
         from ..outputs import render_preview_png
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import logging
+
 import click
 
 from ..caveats import CAVEATS_SHORT
@@ -17,16 +19,21 @@ __all__ = ["command"]
               help="Model to write, e.g. models/NAME (NAME.skops plus NAME.card.json/.card.md beside it).")
 @click.option("--seed", default=6, show_default=True, type=click.IntRange(min=0),
               help="Root seed: same files + seed + sizes = same model.")
-@click.option("--n-per-class", default=900, show_default=True, type=click.IntRange(min=30),
+@click.option("--n-per-class", default=1800, show_default=True, type=click.IntRange(min=30),
               help="Impact training craters; the spot families share the same number.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing model and card.")
-def command(hypotheses_dir, output, seed, n_per_class, overwrite):
+@click.pass_context
+def command(ctx, hypotheses_dir, output, seed, n_per_class, overwrite):
     """Render training craters from the hypothesis files, measure them like real craters,
     fit the impact-vs-electrode-spot scorer and write it with its model card.
 
     The model measures morphological similarity under the files' assumptions, not mechanism.
     """
     from ..scoring._build import rebuild_model
+
+    if (ctx.find_root().obj or {}).get("verbose", 0) < 2:
+        # One line per rendered training surface is debug detail here, not progress.
+        logging.getLogger("morpho.synth").setLevel(logging.WARNING)
 
     path, card = rebuild_model(hypotheses_dir, output, seed=seed, n_per_class=n_per_class,
                                overwrite=overwrite)

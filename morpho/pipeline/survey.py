@@ -65,6 +65,15 @@ class SurveyResult:
     run: dict
     failed_tiles: dict = field(default_factory=dict)
     unmeasured: pd.DataFrame | None = None
+    envelope: pd.DataFrame | None = None
+
+    def write(self, path, *, overwrite: bool = False):
+        """Write the GeoPackage (see :func:`morpho.outputs.write_geopackage`)."""
+        from ..outputs import write_geopackage
+
+        return write_geopackage(path, self.craters, population=self.population, chains=self.chains,
+                                footprint=self.footprint, run=self.run, envelope=self.envelope,
+                                overwrite=overwrite)
 
     @property
     def partial(self) -> bool:
@@ -220,6 +229,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, 
 
     footprint_src = valid_footprint(info)
     model_path = None
+    envelope = None
     if len(df):
         df = add_scaling_columns(df, info.body)
         scores, model_path = _score(df, model)
@@ -229,6 +239,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, 
         df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
         df["chain_id"] = np.asarray(pop.chain_id, dtype="int64")
         population = pop.stats
+        envelope = pop.envelope
         craters = _geodataframe(df, info)
     else:
         craters = _empty_craters(info)
@@ -247,7 +258,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, 
                "seconds": round(seconds, 3), "ground_pixel_m": list(info.ground_pixel_m),
                "warped_to_local_stereographic": info.needs_warp},
     )
-    return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured)
+    return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured, envelope)
 
 
 def _prepare(path, *, body, band, pixel_size, z_scale, z_offset, min_diameter_px):

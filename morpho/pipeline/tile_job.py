@@ -109,7 +109,7 @@ def _measure(tile: DemTile, rows, cols, radius_px, params: TileParams) -> pd.Dat
     return measure_craters(
         tile.z, spacing, rows, cols, radius_px,
         n_azimuths=params.n_azimuths, n_boot=params.n_boot, seed=params.seed + tile.spec.index,
-        refine=True,
+        refine=True, body=tile.body,
     )
 
 
