@@ -188,7 +188,7 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     t_round = 1.0 - np.clip((np.nan_to_num(spread, nan=1.0) - 0.1) / 0.2, 0.0, 1.0)
     m = depth_ratio_floor(2.0 * rad * spacing_m, min_depth_ratio)
     t_depth = np.clip((ratio - 0.5 * m) / (1.5 * m), 0.0, 1.0)
-    t_snr = 1.0 - np.exp(-np.clip(np.nan_to_num(snr, nan=0.0, posinf=1e6), 0.0, None) / 5.0)
+    t_snr = 1.0 - np.exp(-np.clip(np.nan_to_num(snr, nan=0.0, posinf=1e6), 0.0, None) / 4.0)
     share = good.sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
     # Crests far from the fitted radius mean the refinement did not converge on this rim.
     t_fit = 1.0 - np.clip((np.abs(np.nan_to_num(med, nan=0.0) - 1.0) - 0.1) / 0.15, 0.0, 1.0)
@@ -271,9 +271,9 @@ def _screen(z, rows, cols, rad, spacing_m, min_depth_ratio):
     ratio = np.nan_to_num(terms["depth_ratio"])
     snr = np.nan_to_num(terms["snr"], posinf=1e6)
     m = depth_ratio_floor(2.0 * rad * spacing_m, min_depth_ratio)
-    alive = (ratio >= 0.75 * m) & (snr >= 2.5)
+    alive = (ratio >= 0.75 * m) & (snr >= 2.0)
     alive &= np.nan_to_num(terms["spread"], nan=1.0) < 0.3
-    rank = np.minimum(ratio / m, 10.0) * (1.0 - np.exp(-snr / 5.0))
+    rank = np.minimum(ratio / m, 10.0) * (1.0 - np.exp(-snr / 4.0))
     rows, cols, rad = _refit(rows, cols, rad, az, rho, good, 16)
     return rows, cols, rad, np.where(alive, rank + 1e-6, 0.0)
 
