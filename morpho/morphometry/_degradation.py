@@ -9,6 +9,8 @@ diameter bin serves every crater and every bootstrap replicate.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 from ..bodies import Body, get_body
@@ -50,6 +52,17 @@ def _model_table(diameter_m, body, r_norm):
     return model - plain_level(model, r_norm)[:, None], crest
 
 
+@lru_cache(maxsize=512)
+def _cached_table(key: int, body: Body, r_bytes: bytes):
+    """Model table of one diameter bin; computing one costs ~0.1 s, so bins are memoised
+    per process (every tile and bootstrap replicate of a survey reuses them)."""
+    r_norm = np.frombuffer(r_bytes, dtype=np.float64)
+    table, crest = _model_table(float(np.exp(key * _BIN)), body, r_norm)
+    table.setflags(write=False)
+    crest.setflags(write=False)
+    return table, crest
+
+
 def _best_kt(misfit, crest):
     """Grid minimum of ``misfit`` (..., k) refined by a parabola in log(kt).
 
@@ -86,7 +99,7 @@ def _fit_pass(obs_all, dia_shape, body, r_norm, zone):
     bins = _bins(dia_shape)
     for key in np.unique(bins[bins >= 0]):
         sel = bins == key
-        table, crest = _model_table(float(np.exp(key * _BIN)), body, r_norm)
+        table, crest = _cached_table(int(key), body, np.ascontiguousarray(r_norm, np.float64).tobytes())
         table = table[:, zone]  # (k, m)
         obs = obs_all[sel]  # (s, b, m)
         good = np.isfinite(obs)
