@@ -10,6 +10,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import ndimage
 
+from morpho.shapes import crater_profile
+
 __all__ = ["crater_relief", "stamp_craters"]
 
 
@@ -39,7 +41,7 @@ def crater_relief(
         Floor radius / rim radius for ``shape="flat"``.
     ejecta_exponent : float
         Outer flank decays as ``rho ** -ejecta_exponent`` (McGetchin et al. 1973, EPSL 20:226,
-        from memory).
+        from memory), shifted to reach zero at 3 radii.
 
     Returns
     -------
@@ -47,22 +49,14 @@ def crater_relief(
         Elevation in units of the rim-crest diameter, same shape as ``rho``; the maximum is at
         ``rho == 1``.
     """
-    rho = np.asarray(rho, dtype=np.float64)
-    h = rim_height
-    d = depth
-    if shape == "paraboloid":
-        inner = h - d + d * rho**2
-    elif shape == "cone":
-        inner = h - d + d * rho
-    elif shape == "flat":
-        f = floor_fraction
-        t = np.clip((rho - f) / (1.0 - f), 0.0, None)
-        inner = h - d + d * t**2
-    else:
+    forms = {"paraboloid": (2.0, 0.0), "cone": (1.0, 0.0), "flat": (2.0, floor_fraction)}
+    if shape not in forms:
         raise ValueError(f"shape must be 'paraboloid', 'cone' or 'flat'; got {shape!r}")
-    with np.errstate(divide="ignore"):
-        outer = h * np.where(rho > 0, rho, 1.0) ** (-ejecta_exponent)
-    return np.where(rho <= 1.0, inner, outer)
+    exponent, floor = forms[shape]
+    # The project's generic profile (morpho.shapes); the flank reaches zero at 3 radii, the
+    # extent of the stamping window below.
+    return crater_profile(rho, depth, rim_height, interior_exponent=exponent,
+                          floor_fraction=floor, flank_exponent=ejecta_exponent, flank_outer=3.0)
 
 
 def stamp_craters(
