@@ -54,8 +54,9 @@ def _neighbour_edges(xy, diameter_m, min_link_m):
     # a link may be found from one end only (the larger crater reaches further): add
     # both directions, then drop the copies found from both ends
     c, o = centre[keep], other[keep]
-    edges = np.unique(np.column_stack([np.r_[c, o], np.r_[o, c]]), axis=0)
-    return edges
+    n = np.int64(len(xy))
+    key = np.unique(np.r_[c * n + o, o * n + c])
+    return np.column_stack([key // n, key % n])
 
 
 def aligned_triplets(x_m, y_m, diameter_m, *, min_link_m: float = 0.0) -> np.ndarray:
@@ -124,8 +125,8 @@ def _triplet_components(tri, x, y):
     m = len(tri)
     pair_keys = np.sort(np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [0, 2]]]), axis=1)
     owner = np.tile(np.arange(m), 3)
-    _, pair_idx = np.unique(pair_keys, axis=0, return_inverse=True)
-    pair_idx = pair_idx.ravel()
+    span = np.int64(tri.max() + 1)
+    _, pair_idx = np.unique(pair_keys[:, 0] * span + pair_keys[:, 1], return_inverse=True)
     axis = np.arctan2(y[tri[:, 2]] - y[tri[:, 0]], x[tri[:, 2]] - x[tri[:, 0]]) % np.pi
     # every two triplets holding the same pair: a self-join on the pair
     order = np.argsort(pair_idx, kind="stable")
@@ -145,8 +146,9 @@ def _triplet_components(tri, x, y):
 def _groups(tri, x, y):
     """Crater indices of each triplet component, largest first."""
     comp = _triplet_components(tri, x, y)
-    pairs = np.unique(np.column_stack([np.repeat(comp, 3), tri.ravel()]), axis=0)
-    groups = np.split(pairs[:, 1], np.flatnonzero(np.diff(pairs[:, 0])) + 1)
+    span = np.int64(tri.max() + 1)
+    key = np.unique(np.repeat(comp, 3).astype(np.int64) * span + tri.ravel())
+    groups = np.split(key % span, np.flatnonzero(np.diff(key // span)) + 1)
     return sorted(groups, key=len, reverse=True)
 
 

@@ -18,17 +18,22 @@ def boundary_distance(x_m, y_m, valid_area) -> np.ndarray:
     return shapely.distance(valid_area.boundary, shapely.points(np.asarray(x_m), np.asarray(y_m)))
 
 
-def default_radii(valid_area, n_radii: int = 40) -> np.ndarray:
+def default_radii(valid_area, n_radii: int = 40, n_points: int | None = None) -> np.ndarray:
     """Radii at which K is evaluated: up to a quarter of sqrt(area), capped by the inradius.
 
     Beyond a quarter of the region's size the border-corrected estimator rests on few
-    points (common practice; Ripley 1988). Returns an increasing array of shape (n_radii,).
+    points (common practice; Ripley 1988). With ``n_points`` given, the range also stops
+    at 15 CSR nearest-neighbour distances (0.5 sqrt(A/n) each), which keeps the pair
+    count of large surveys in bounds while covering the scales where crater clustering
+    shows. Returns an increasing array r_k = (k + 1) r_max / n_radii, shape (n_radii,).
     """
     side = np.sqrt(valid_area.area)
     # the largest inscribed circle bounds how far the border correction can reach
     inradius = _inradius(valid_area)
     r_max = min(0.25 * side, 0.9 * inradius)
-    return np.linspace(r_max / n_radii, r_max, n_radii)
+    if n_points:
+        r_max = min(r_max, 15 * 0.5 * side / np.sqrt(n_points))
+    return r_max / n_radii * np.arange(1, n_radii + 1)
 
 
 def _inradius(valid_area) -> float:
@@ -75,8 +80,7 @@ def ripley_k(x_m, y_m, valid_area, radii_m) -> np.ndarray:
     d2 = np.concatenate([d, d])
     b_centre = np.concatenate([b[pairs[:, 0]], b[pairs[:, 1]]])
     # pair contributes at radii r_k with d <= r_k <= b_centre: a +1/-1 difference array
-    lo = np.searchsorted(r, d2, side="left")
-    hi = np.searchsorted(r, b_centre, side="right")
+    lo, hi = _radius_index(r, d2, b_centre)
     ok = lo < hi
     diff = (np.bincount(lo[ok], minlength=r.size + 1) - np.bincount(hi[ok], minlength=r.size + 1))
     counts = np.cumsum(diff)[: r.size]
@@ -84,6 +88,17 @@ def ripley_k(x_m, y_m, valid_area, radii_m) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore"):
         k = valid_area.area * counts / ((n - 1) * centres)
     return np.where(centres > 0, k, np.nan)
+
+
+def _radius_index(r, d, b):
+    """First radius index >= d and first index > b (searchsorted), fast on the default grid."""
+    step = r[0]
+    if np.allclose(r, step * np.arange(1, r.size + 1), rtol=1e-12, atol=0):
+        # r_k = (k + 1) step: arithmetic instead of a binary search over millions of pairs
+        lo = np.clip(np.ceil(d / step - 1 - 1e-12), 0, r.size).astype(np.int64)
+        hi = np.clip(np.floor(b / step + 1e-12), 0, r.size).astype(np.int64)
+        return lo, hi
+    return np.searchsorted(r, d, side="left"), np.searchsorted(r, b, side="right")
 
 
 def besag_l(k_m2) -> np.ndarray:

@@ -198,7 +198,7 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
     envelope = pd.DataFrame()
     if n >= 5:
         rng = np.random.default_rng(seed)
-        radii = default_radii(valid_area)
+        radii = default_radii(valid_area, n_points=n)
         min_link = csr_mean_nn_distance(n / area)
         obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link)
         sims = simulate_csr(valid_area, n, n_simulations, rng=rng)
