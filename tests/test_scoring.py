@@ -159,3 +159,13 @@ def test_fit_refuses_bad_labels():
         ImpactSpotClassifier(impact_label="crater").fit(X, y)
     with pytest.raises(ValueError, match="at least 2 classes"):
         ImpactSpotClassifier().fit(X, np.full(len(y), "impact"))
+
+
+def test_same_seed_same_model(held_out):
+    # Common practice: randomness only through random_state, so a rebuild is identical.
+    X, y = toy_features(150, seed=6)
+    a = ImpactSpotClassifier(random_state=3, max_iter=15).fit(X, y)
+    b = ImpactSpotClassifier(random_state=3, max_iter=15).fit(X, y)
+    Xh = held_out[0].iloc[:200]
+    np.testing.assert_array_equal(a.predict_proba(Xh), b.predict_proba(Xh))
+    np.testing.assert_array_equal(a.typicality(Xh), b.typicality(Xh))

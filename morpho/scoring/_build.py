@@ -23,7 +23,7 @@ __all__ = ["DEFAULT_SEED", "DEFAULT_N_PER_CLASS", "rebuild_command", "rebuild_mo
 log = logging.getLogger(__name__)
 
 DEFAULT_SEED = 6
-DEFAULT_N_PER_CLASS = 900
+DEFAULT_N_PER_CLASS = 1800
 #: Held-out craters per class, rendered with a seed no training crater used.
 HELD_OUT_SEED_OFFSET = 1_000_003
 #: Normalised degradation of the stress-test craters (beyond the training range).

@@ -143,8 +143,10 @@ def render_card_markdown(card: dict) -> str:
               for m in card.get("held_out_metrics", [])]
     bowl = card.get("fresh_bowl_check")
     if bowl:
-        lines += ["", f"Fresh Pike-shaped bowls on held-out DEMs: {_fmt(bowl.get('share_p_impact_ge_0_5'))} "
-                      f"of {bowl.get('n')} have p_impact >= 0.5."]
+        lines += ["", f"Fresh Pike-shaped bowls on held-out DEMs ({bowl.get('source')}): "
+                      f"{_fmt(bowl.get('share_unoverlapped'))} of the {bowl.get('n_unoverlapped')} whose rim does "
+                      f"not overlap a neighbour's have p_impact >= 0.5; {_fmt(bowl.get('share_p_impact_ge_0_5'))} "
+                      f"of all {bowl.get('n')}."]
     stress = card.get("stress_test")
     if stress:
         lines += ["", f"Stress test, {stress.get('what')}:", "", "| band | n | accuracy | Brier | ECE |",
@@ -169,6 +171,7 @@ def _atomic_write_text(path: Path, text: str) -> None:
     fd, tmp = tempfile.mkstemp(prefix=path.name, suffix=".tmp", dir=path.parent)
     with os.fdopen(fd, "w", encoding="utf-8") as fh:
         fh.write(text)
+    os.chmod(tmp, 0o644)
     os.replace(tmp, path)
 
 

@@ -91,6 +91,9 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         Passed to both :class:`~sklearn.ensemble.HistGradientBoostingClassifier`.
     n_neighbors : int, default=5
         k of the k-NN typicality score.
+    typicality_metric : {"euclidean", "chebyshev"}, default="euclidean"
+        Distance in robust z-scores for typicality; Chebyshev lets one extreme feature
+        decide.
     max_reference : int, default=2000
         At most this many training craters per hypothesis are kept for typicality
         (random subsample), which bounds model size and scoring time.
@@ -139,6 +142,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         min_samples_leaf=20,
         max_features=1.0,
         n_neighbors=5,
+        typicality_metric="euclidean",
         max_reference=2000,
         typicality_exclude=("pixels_per_diameter",),
         random_state=None,
@@ -153,6 +157,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         self.min_samples_leaf = min_samples_leaf
         self.max_features = max_features
         self.n_neighbors = n_neighbors
+        self.typicality_metric = typicality_metric
         self.max_reference = max_reference
         self.typicality_exclude = typicality_exclude
         self.random_state = random_state
@@ -195,6 +200,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
                 f"calibration must be 'sigmoid' or 'isotonic' for {type(self).__name__}; "
                 f"got {self.calibration!r}"
             )
+        self._minkowski_p()  # validates typicality_metric before the expensive part
         X, y = validate_data(self, X, y, ensure_all_finite="allow-nan", dtype=np.float64)
         check_classification_targets(y)
         # Columns never measured in training are constant for the trees (all-NaN columns
@@ -264,9 +270,15 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             if idx.size > self.max_reference:
                 idx = np.sort(rng.choice(idx, size=self.max_reference, replace=False))
             Z = typ.standardise(X[idx], self.center_, self.scale_, mask)
-            points, loo, k = typ.fit_reference(Z, self.n_neighbors)
+            points, loo, k = typ.fit_reference(Z, self.n_neighbors, self._minkowski_p())
             self.references_[key] = {"points": points, "loo_scores": loo, "k": k}
         return self
+
+    def _minkowski_p(self):
+        if self.typicality_metric not in ("euclidean", "chebyshev"):
+            raise ValueError(f"typicality_metric must be 'euclidean' or 'chebyshev' for "
+                             f"{type(self).__name__}; got {self.typicality_metric!r}")
+        return 2.0 if self.typicality_metric == "euclidean" else np.inf
 
     # ------------------------------------------------------------------ scores
     def _check(self, X):
@@ -342,7 +354,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         cols = []
         for key in ("impact", "spot"):
             ref = self.references_[key]
-            cols.append(typ.typicality(Z, ref["points"], ref["loo_scores"], ref["k"]))
+            cols.append(typ.typicality(Z, ref["points"], ref["loo_scores"], ref["k"], self._minkowski_p()))
         return np.column_stack(cols)
 
     @_single_thread

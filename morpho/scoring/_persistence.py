@@ -99,6 +99,7 @@ def save_model(model, path, card=None, *, overwrite=False):
     try:
         # Deflate: the trees and reference arrays compress to about a third.
         _sio().dump(payload, tmp, compression=zipfile.ZIP_DEFLATED, compresslevel=9)
+        os.chmod(tmp, 0o644)  # mkstemp makes it private; a model is meant to be shared
         os.replace(tmp, path)
     except Exception as err:
         Path(tmp).unlink(missing_ok=True)

@@ -90,6 +90,7 @@ def surface_training_set(hyps: dict, n_craters: int, band, *, body, seed: int, d
         df["truth_degradation"] = t["degradation"].to_numpy()
         df["truth_complex"] = t["complex"].to_numpy()
         df["truth_diameter_m"] = t["diameter_m"].to_numpy()
+        df["truth_depth_diameter"] = (t["depth_m"] / t["diameter_m"]).to_numpy()
         frames.append(df)
         total += len(df)
     return pd.concat(frames, ignore_index=True)

@@ -49,13 +49,29 @@ def robust_scale(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return center, scale
 
 
+#: Distance that a missing value adds along its own axis (log1p(6): a 6-robust-SD departure):
+#: a feature that could not be measured where the class's craters have one is evidence of
+#: an unusual shape (a dome has no rim crest), not a free pass at the median.
+NAN_DISTANCE = 2.0
+
+
 def standardise(X: np.ndarray, center: np.ndarray, scale: np.ndarray, mask: np.ndarray) -> np.ndarray:
-    """Robust z-scores of the columns in ``mask``; NaN becomes 0 (the pooled median)."""
-    Z = (X[:, mask] - center[mask]) / scale[mask]
-    return np.nan_to_num(Z, nan=0.0, posinf=1e6, neginf=-1e6)
+    """Log-compressed robust z-scores of the columns in ``mask`` plus a missing-value indicator per column.
+
+    ``sign(z) log(1 + |z|)``; NaN becomes 0 (the pooled median) in the z-score and
+    :data:`NAN_DISTANCE` in its indicator column, so shape (n, 2 * mask.sum()).
+    """
+    sub = X[:, mask]
+    Z = (sub - center[mask]) / scale[mask]
+    Z = np.nan_to_num(Z, nan=0.0, posinf=1e6, neginf=-1e6)
+    # Ratios of small numbers (wall steepness per d/D, rim-to-depth) have tails of 100s of
+    # robust SDs; unsquashed, a few such features decide every distance. log1p keeps the
+    # order (monotone) but lets all features count.
+    Z = np.sign(Z) * np.log1p(np.abs(Z))
+    return np.hstack([Z, np.isnan(sub) * NAN_DISTANCE])
 
 
-def fit_reference(Z: np.ndarray, n_neighbors: int) -> tuple[np.ndarray, np.ndarray, int]:
+def fit_reference(Z: np.ndarray, n_neighbors: int, p: float = 2.0) -> tuple[np.ndarray, np.ndarray, int]:
     """Reference points of one class and their sorted leave-one-out k-NN distances.
 
     Parameters
@@ -64,6 +80,8 @@ def fit_reference(Z: np.ndarray, n_neighbors: int) -> tuple[np.ndarray, np.ndarr
         Standardised training examples of the class.
     n_neighbors : int
         k of the k-NN nonconformity score (capped at m - 1).
+    p : float
+        Minkowski exponent of the distance (2 Euclidean, ``inf`` Chebyshev).
 
     Returns
     -------
@@ -78,11 +96,11 @@ def fit_reference(Z: np.ndarray, n_neighbors: int) -> tuple[np.ndarray, np.ndarr
     if m < 2:
         return Z.copy(), np.zeros(m), k
     # k + 1 neighbours because each point is its own nearest neighbour.
-    dist, _ = KDTree(Z).query(Z, k=k + 1)
+    dist, _ = KDTree(Z).query(Z, k=k + 1, p=p)
     return Z.copy(), np.sort(dist[:, -1]), k
 
 
-def typicality(Z: np.ndarray, points: np.ndarray, loo_scores: np.ndarray, k: int) -> np.ndarray:
+def typicality(Z: np.ndarray, points: np.ndarray, loo_scores: np.ndarray, k: int, p: float = 2.0) -> np.ndarray:
     """Conformal p-value in (0, 1] of each row of ``Z`` under the class given by ``points``.
 
     ``(1 + #{training scores >= score}) / (n + 1)`` with the score the distance to the
@@ -94,7 +112,7 @@ def typicality(Z: np.ndarray, points: np.ndarray, loo_scores: np.ndarray, k: int
     if n == 0:
         return np.zeros(Z.shape[0])
     kk = min(k, n)
-    dist, _ = KDTree(points).query(Z, k=kk)
+    dist, _ = KDTree(points).query(Z, k=kk, p=p)
     score = dist if dist.ndim == 1 else dist[:, -1]
     n_ge = n - np.searchsorted(loo_scores, score, side="left")
     return (1.0 + n_ge) / (n + 1.0)
