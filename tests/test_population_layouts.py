@@ -117,6 +117,19 @@ def test_result_contract_and_dictionary():
     assert res.stats.equals(again.stats)
 
 
+def test_diameter_classes_split_clark_evans():
+    # large craters clustered, small ones random: only the large class is clustered
+    rng = np.random.default_rng(9)
+    xs, ys, _ = random_layout(rng, 300)
+    xl, yl, _ = clustered_layout(rng, n_parents=10, children=12, sigma=300.0)
+    x, y = np.r_[xs, xl], np.r_[ys, yl]
+    d = np.r_[np.full(xs.size, 100.0), np.full(xl.size, 400.0)]
+    res = population_statistics(x, y, d, BOX, completeness_diameter_m=50.0, diameter_classes_m=[50, 200, 800],
+                                n_simulations=19)
+    assert 0.85 <= res.stat("clark_evans_R_D50-200m") <= 1.2
+    assert res.stat("clark_evans_R_D200-800m") < 0.7 and res.p("clark_evans_R_D200-800m") < 0.001
+
+
 def test_bad_inputs_raise_morpho_errors():
     with pytest.raises(InputError):
         population_statistics([0, 1], [0], [1, 1], BOX)

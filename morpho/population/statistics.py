@@ -116,7 +116,8 @@ def _spatial_measures(x, y, d, valid_area, radii, min_link):
 
 
 def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_deg=None, ellipticity=None,
-                          completeness_diameter_m=None, n_simulations: int = 99, seed=0) -> PopulationResult:
+                          completeness_diameter_m=None, diameter_classes_m=None, n_simulations: int = 99,
+                          seed=0) -> PopulationResult:
     """Size-frequency, spatial-randomness, clustering, alignment and superposition statistics.
 
     Statistics use the craters at or above the completeness diameter; p-values of the
@@ -138,6 +139,9 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         axial Rayleigh test of elongation (craters with ellipticity >= 1.1 only).
     completeness_diameter_m : float, optional
         Set the completeness limit; default from the SFD roll-over.
+    diameter_classes_m : sequence of float, optional
+        Class edges (m); adds a Clark-Evans row per class ``[lo, hi)`` holding >= 10
+        craters above completeness, named ``clark_evans_R_D<lo>-<hi>m``.
     n_simulations : int
         CSR simulations for the Monte Carlo tests (99 gives p >= 0.01).
     seed : int or numpy.random.Generator
@@ -191,6 +195,14 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         CLARK_EVANS_REFERENCE)
     add("clark_evans_z", ce.z, ce.p_value, n, "normal deviate of the mean nearest-neighbour distance",
         CLARK_EVANS_REFERENCE)
+
+    edges = np.asarray(diameter_classes_m if diameter_classes_m is not None else [], float)
+    for lo, hi in zip(edges[:-1], edges[1:], strict=True):
+        cls = (ds >= lo) & (ds < hi)
+        if cls.sum() >= 10:
+            ce_k = clark_evans(xs[cls], ys[cls], area, valid_area.length)
+            add(f"clark_evans_R_D{lo:g}-{hi:g}m", ce_k.R, ce_k.p_value, ce_k.n,
+                f"as clark_evans_R, craters with {lo:g} <= D < {hi:g} m", CLARK_EVANS_REFERENCE)
 
     cluster_id = np.full(n_all, -1, dtype=np.int64)
     chain_id = np.full(n_all, -1, dtype=np.int64)
