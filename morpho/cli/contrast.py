@@ -135,8 +135,14 @@ def read_region(path):
     return craters, area, notes
 
 
+def _tick(value, _pos):
+    mantissa = round(value / 10 ** np.floor(np.log10(value)), 6)
+    return f"{value:g}" if mantissa in (1.0, 2.0, 5.0) else ""
+
+
 def _sfd_figure(regions, dc):
     from matplotlib.figure import Figure
+    from matplotlib.ticker import FuncFormatter
 
     from ..population.sfd import sfd_table
 
@@ -154,6 +160,9 @@ def _sfd_figure(regions, dc):
     for ax in (ax1, ax2):
         ax.set_xscale("log")
         ax.set_yscale("log")
+        # plain numbers at 1, 2 and 5 per decade; all minor labels would run into each other
+        ax.xaxis.set_major_formatter(FuncFormatter(_tick))
+        ax.xaxis.set_minor_formatter(FuncFormatter(_tick))
         ax.set_xlabel("Diameter D (km)")
         ax.legend(fontsize=8)
     ax1.set_ylabel("Cumulative N(>=D) per km$^2$")
@@ -167,7 +176,7 @@ def _feature_figure(regions, features):
     from matplotlib.figure import Figure
 
     cols = list(features)[:12]
-    ncol = 3
+    ncol = max(1, min(3, len(cols)))
     nrow = max(1, -(-len(cols) // ncol))
     fig = Figure(figsize=(4 * ncol, 3 * nrow), layout="constrained")
     axes = np.atleast_1d(fig.subplots(nrow, ncol)).ravel()
