@@ -130,6 +130,20 @@ def test_diameter_classes_split_clark_evans():
     assert res.stat("clark_evans_R_D200-800m") < 0.7 and res.p("clark_evans_R_D200-800m") < 0.001
 
 
+def test_mask_null_and_craters_outside_the_mask():
+    # in an irregular footprint with a hole the CSR-in-mask ratio is ~1 for CSR (exact null,
+    # Besag & Diggle 1977); a crater centred outside the footprint is left out and counted
+    rng = np.random.default_rng(10)
+    x, y, d = random_layout(rng, 300, MASK)
+    x, y, d = np.r_[x, 6000.0], np.r_[y, 5500.0], np.r_[d, 500.0]   # inside the hole
+    res = population_statistics(x, y, d, MASK, seed=10, n_simulations=49)
+    assert res.stat("clark_evans_R_mask") == pytest.approx(1.0, abs=0.1)
+    assert res.p("clark_evans_R_mask") > 0.05
+    assert res.stat("n_outside_area") == 1
+    assert res.cluster_id[-1] == -1
+    assert res.n_craters == int(np.sum(d[:-1] >= res.completeness_diameter_m))
+
+
 def test_bad_inputs_raise_morpho_errors():
     with pytest.raises(InputError):
         population_statistics([0, 1], [0], [1, 1], BOX)

@@ -6,12 +6,18 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+import shapely
 
 from ..errors import InputError
 from .alignments import ALIGNMENT_REFERENCE, aligned_triplets, extract_chains, longest_chain
 from .clusters import DBSCAN_REFERENCE, dbscan_clusters
 from .csr import check_area, check_points, simulate_csr
-from .nearest_neighbour import CLARK_EVANS_REFERENCE, clark_evans, csr_mean_nn_distance
+from .nearest_neighbour import (
+    CLARK_EVANS_REFERENCE,
+    clark_evans,
+    csr_mean_nn_distance,
+    nearest_neighbour_distances,
+)
 from .orientation import RAYLEIGH_REFERENCE, axial_rayleigh
 from .production import NEUKUM_REFERENCE, production_function_fit
 from .ripley import RIPLEY_REFERENCE, besag_l, default_radii, pair_correlation, ripley_k
@@ -108,6 +114,7 @@ def _spatial_measures(x, y, d, valid_area, radii, min_link):
     tri = aligned_triplets(x, y, d, min_link_m=min_link)
     rim = on_larger_rim(x, y, d)
     return {
+        "nn_mean": float(np.mean(nearest_neighbour_distances(x, y))),
         "L": besag_l(k), "g_peak": float(np.nanmax(g)) if np.any(np.isfinite(g)) else np.nan,
         "n_clusters": float(labels.max() + 1), "clustered": float(np.mean(labels >= 0)),
         "triplets": float(len(tri)), "longest_chain": float(longest_chain(x, y, d, tri)), "rim_share": float(np.mean(rim)),
@@ -158,12 +165,17 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
     """
     x, y, d = check_points(x_m, y_m, diameter_m, names=("x_m", "y_m", "diameter_m"))
     valid_area = check_area(valid_area)
+    if int(n_simulations) < 1:
+        raise InputError(f"n_simulations must be >= 1, got {n_simulations}.",
+                         fix="use 99 (p >= 0.01) or 999 (p >= 0.001)")
     if np.any(d <= 0):
         raise InputError("diameter_m must be positive.", fix="drop craters without a measured diameter")
     n_all = x.size
     area = valid_area.area
     dc = estimate_completeness(d) if completeness_diameter_m is None else float(completeness_diameter_m)
-    keep = d >= dc if n_all else np.zeros(0, bool)
+    # centres outside the mask would meet an empty null: they are left out and counted
+    inside = shapely.intersects_xy(valid_area, x, y)
+    keep = (d >= dc) & inside
     xs, ys, ds = x[keep], y[keep], d[keep]
     n = xs.size
     rows = []
@@ -172,6 +184,8 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         rows.append((name, float(value), float(p), int(count), method, reference))
 
     add("n_craters", n, np.nan, n, "craters with diameter >= completeness diameter", "common practice")
+    add("n_outside_area", int(np.sum(~inside)), np.nan, n_all,
+        "craters whose centre lies outside valid_area (left out of every statistic)", "common practice")
     add("completeness_diameter_m", dc, np.nan, n_all,
         "lower edge of the modal root-2 bin (SFD roll-over)" if completeness_diameter_m is None
         else "set by the user", CATWG_REFERENCE)
@@ -224,6 +238,13 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         add("ripley_L_max_deviation", dev_obs, _mc_p(dev_obs, dev_sim), n,
             f"max over r <= {radii[-1]:.4g} m of |L(r) - mean simulated L(r)| (m), border-corrected K; "
             "global deviation test", RIPLEY_REFERENCE)
+        nn_sim = np.array([s["nn_mean"] for s in sim])
+        r_mask = obs["nn_mean"] / nn_sim.mean()
+        # two-sided: the rarer tail, doubled (Besag & Diggle 1977)
+        p_mask = min(1.0, 2 * min(_mc_p(obs["nn_mean"], nn_sim), _mc_p(-obs["nn_mean"], -nn_sim)))
+        add("clark_evans_R_mask", r_mask, p_mask, n,
+            "mean nearest-neighbour distance / its mean under CSR simulated in the mask (exact edge "
+            "treatment for any footprint); two-sided " + _MC, CLARK_EVANS_REFERENCE + "; " + _MC_REF)
         simulated = {key: np.array([s[key] for s in sim]) for key in ("g_peak", "n_clusters", "clustered",
                                                                        "triplets", "longest_chain", "rim_share")}
         add("pair_correlation_peak", obs["g_peak"], _mc_p(obs["g_peak"], simulated["g_peak"]), n,
@@ -254,7 +275,7 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         chain_sub, chains = extract_chains(xs, ys, ds, obs["_tri"])
         chain_id[keep] = chain_sub
     else:
-        for name in ("ripley_L_max_deviation", "pair_correlation_peak", "dbscan_n_clusters",
+        for name in ("clark_evans_R_mask", "ripley_L_max_deviation", "pair_correlation_peak", "dbscan_n_clusters",
                      "dbscan_clustered_fraction", "aligned_triplets", "alignment_excess", "longest_chain",
                      "rim_superposition_share", "rim_superposition_excess"):
             add(name, np.nan, np.nan, n, "fewer than 5 craters above completeness", "common practice")
