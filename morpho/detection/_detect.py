@@ -119,7 +119,8 @@ def detect_craters(
     cand = find_candidates(filled, valid, min_radius_px=min_r, max_radius_px=max_r,
                            spacing_m=float(spacing_m), min_depth_ratio=min_depth_ratio)
     # Cheap first merge on the detector score: many scale-space maxima are the same bowl.
-    keep = suppress_duplicates(cand.rows, cand.cols, cand.radius_px, cand.score, max_offset=0.3)
+    keep = suppress_duplicates(cand.rows, cand.cols, cand.radius_px, cand.score, max_offset=0.3,
+                               greedy=False)
     ver = verify_candidates(z, cand.rows[keep], cand.cols[keep], cand.radius_px[keep],
                             float(spacing_m), min_depth_ratio=min_depth_ratio,
                             n_azimuths=n_azimuths)

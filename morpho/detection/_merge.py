@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 from scipy.spatial import cKDTree
 
@@ -16,6 +18,7 @@ def suppress_duplicates(
     *,
     max_offset: float = 0.5,
     max_ratio: float = 1.5,
+    greedy: bool = True,
 ) -> np.ndarray:
     """Indices of detections kept after greedy suppression, best ``rank`` first.
 
@@ -30,6 +33,10 @@ def suppress_duplicates(
         Centres and radii (pixels) and the quantity to prefer (higher is better).
     max_offset, max_ratio : float
         Duplicate criteria.
+    greedy : bool
+        True: classic sequential suppression (a suppressed detection suppresses nothing).
+        False: one vectorised pass where every detection with a better-ranked duplicate goes,
+        slightly more aggressive and much faster; used to thin candidates before profiling.
 
     Returns
     -------
@@ -41,6 +48,8 @@ def suppress_duplicates(
         return np.empty(0, dtype=np.int64)
     order = np.argsort(-rank, kind="stable")
     tree = cKDTree(np.column_stack([rows, cols]))
+    if not greedy:
+        return _parallel(tree, rows, cols, radius_px, rank, order, max_offset, max_ratio)
     alive = np.ones(n, dtype=bool)
     kept = []
     # A loop over detections (not pixels): each pass removes the neighbours of one survivor.
@@ -58,3 +67,21 @@ def suppress_duplicates(
         dup = (dist < max_offset * big) & (big < max_ratio * small)
         alive[near[dup]] = False
     return np.asarray(kept, dtype=np.int64)
+
+
+def _parallel(tree, rows, cols, radius_px, rank, order, max_offset, max_ratio):
+    """Drop every detection that has a better-ranked duplicate (vectorised over pairs)."""
+    near = tree.query_ball_point(np.column_stack([rows, cols]), max_offset * max_ratio * radius_px)
+    counts = np.fromiter((len(x) for x in near), dtype=np.int64, count=rows.size)
+    i = np.repeat(np.arange(rows.size), counts)
+    j = np.fromiter(itertools.chain.from_iterable(near), dtype=np.int64, count=int(counts.sum()))
+    big = np.maximum(radius_px[i], radius_px[j])
+    small = np.minimum(radius_px[i], radius_px[j])
+    dist = np.hypot(rows[i] - rows[j], cols[i] - cols[j])
+    position = np.empty(rows.size, dtype=np.int64)
+    position[order] = np.arange(rows.size)
+    # j loses to i when they are duplicates and i comes first in the ranking.
+    loses = (dist < max_offset * big) & (big < max_ratio * small) & (position[i] < position[j])
+    dead = np.zeros(rows.size, dtype=bool)
+    dead[j[loses]] = True
+    return order[~dead[order]]

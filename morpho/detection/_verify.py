@@ -245,7 +245,8 @@ def verify_candidates(
     rows, cols, rad, rank = (np.concatenate(x) for x in zip(*parts, strict=True))
     # Candidates from neighbouring scales and pixels converge on the same rim after one
     # refit: merge them before the expensive passes.
-    keep = suppress_duplicates(rows, cols, rad, rank, max_offset=0.25, max_ratio=1.25)
+    keep = suppress_duplicates(rows, cols, rad, rank, max_offset=0.25, max_ratio=1.25,
+                               greedy=False)
     keep = keep[rank[keep] > 0]
     rows, cols, rad = rows[keep], cols[keep], rad[keep]
     parts = [_refine_and_rate(z, rows[i:i + _CHUNK], cols[i:i + _CHUNK], rad[i:i + _CHUNK],
