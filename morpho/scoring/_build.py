@@ -103,10 +103,6 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
         "surface_share": SURFACE_SHARE,
         "held_out": f"{n_held_out} impact craters + the same number of spot craters, seed {seed + HELD_OUT_SEED_OFFSET}",
         "spot_family_accuracy_held_out": round(evaluation["family_accuracy"], 4),
-        "held_out_by_context": {
-            ctx: {r["band"]: {"n": r["n"], "accuracy": round(r["accuracy"], 4), "ece": round(r["ece"], 4)}
-                  for r in rows if r["band"] in (">=20 px", "10-20 px")}
-            for ctx, rows in evaluation["by_context"].items()},
         "verdict_shares_held_out": evaluation["verdicts"],
         "renderer": "morpho.synth.render_crater_patches",
         "measurement": "morpho.morphometry.measure_craters (same code path as real craters)",
@@ -116,7 +112,7 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
     cmd_dir = command_dir if command_dir is not None else str(hypotheses_dir)
     card = build_card(
         name=out.name[: -len(".skops")], model=model, hypotheses=hyp_rows, training=training,
-        metrics=evaluation["bands"], bowl_check=bowls,
+        metrics=evaluation["bands"], bowl_check=bowls, metrics_by_context=evaluation["by_context"],
         stress={"what": f"strongly degraded craters, kappa t / D^2 in {list(STRESS_DEGRADATION)} "
                         "(outside the training range)",
                 "bands": stress["bands"], "verdicts": stress["verdicts"]},
