@@ -69,10 +69,12 @@ def test_clustered_layout_clark_evans_low_and_significant():
     assert res.p("dbscan_clustered_fraction") <= 0.01
 
 
-@pytest.mark.parametrize("seed", [5, 6])
-def test_planted_chain_of_nine_is_significant_and_extracted(seed):
-    # issue 7 figure: alignment p < 0.05 (Monte Carlo in the spirit of Broadbent 1980, JRSS A 143:109)
-    x, y, d = chain_layout(np.random.default_rng(seed))
+@pytest.mark.parametrize("seed, n_background, d_chain, spacing",
+                         [(5, 250, 300.0, 1.6), (6, 250, 300.0, 1.6), (7, 900, 150.0, 2.5), (8, 120, 80.0, 1.0)])
+def test_planted_chain_of_nine_is_significant_and_extracted(seed, n_background, d_chain, spacing):
+    # issue 7 figure: alignment p < 0.05 (Monte Carlo in the spirit of Broadbent 1980, JRSS A 143:109);
+    # sparse and dense backgrounds, touching and spaced chains
+    x, y, d = chain_layout(np.random.default_rng(seed), n_background, d_chain, spacing)
     res = population_statistics(x, y, d, BOX, seed=seed)
     assert res.p("alignment_excess") < 0.05
     assert res.stat("alignment_excess") > 5

@@ -36,6 +36,9 @@ SIZE_RATIO = 2.0
 WIDTH_FACTOR = 0.5
 #: Largest change of direction (degrees) between two triplets that continue one chain.
 MAX_BEND = 10.0
+#: Largest group searched exhaustively for its best strip (pairs grow as n^2); larger
+#: groups, which only arise in saturated fields, are trimmed point by point instead.
+_MAX_CONSENSUS = 80
 #: Fewest craters in a reported chain.
 MIN_CHAIN = 5
 
@@ -155,19 +158,31 @@ def _groups(tri, x, y):
 def _straighten(idx, x, y, d):
     """Members of a group that lie within one strip, with the strip's axis and centre.
 
-    Drops the member farthest from the total-least-squares line until every member is
-    within half the strip width (WIDTH_FACTOR/2 of the members' mean diameter) of it:
-    the Broadbent (1980) definition of an alignment, all points in one strip.
+    The strip (half-width WIDTH_FACTOR/2 of the members' mean diameter) is placed along
+    the line through the two members that leaves the most members inside it (an exhaustive
+    consensus search, robust to a stray crater at a chain's end); the axis is then the
+    total-least-squares line through those members. This is the Broadbent (1980)
+    definition of an alignment: all points within one strip.
     """
     idx = np.asarray(idx)
+    pts = np.column_stack([x[idx], y[idx]])
+    half_width = 0.5 * WIDTH_FACTOR * d[idx].mean()
+    if 3 < len(idx) <= _MAX_CONSENSUS:
+        a, b = np.triu_indices(len(idx), 1)
+        u = pts[b] - pts[a]
+        normal = np.column_stack([-u[:, 1], u[:, 0]]) / np.hypot(u[:, 0], u[:, 1])[:, None]
+        dist = np.abs(np.einsum("pk,pmk->pm", normal, pts[None, :, :] - pts[a][:, None, :]))
+        inside = dist <= half_width
+        best = inside[int(np.argmax(inside.sum(axis=1)))]
+        idx, pts = idx[best], pts[best]
     while True:
-        pts = np.column_stack([x[idx], y[idx]])
         centre = pts.mean(axis=0)
         _, _, vt = np.linalg.svd(pts - centre, full_matrices=False)
         resid = np.abs((pts - centre) @ vt[1])
-        if len(idx) <= 3 or resid.max() <= 0.5 * WIDTH_FACTOR * d[idx].mean():
+        if len(idx) <= 3 or resid.max() <= half_width:
             return idx, vt[0], centre
-        idx = np.delete(idx, int(np.argmax(resid)))
+        keep = np.arange(len(idx)) != int(np.argmax(resid))
+        idx, pts = idx[keep], pts[keep]
 
 
 def longest_chain(x_m, y_m, diameter_m, triplets) -> int:
