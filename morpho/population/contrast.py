@@ -193,6 +193,18 @@ def contrast_regions(regions, *, features=None, n_boot: int = 999, seed=0,
     Benjamini Y., Hochberg Y. (1995) J. R. Statist. Soc. B 57:289-300.
     Scholz F.W., Stephens M.A. (1987) J. Am. Stat. Assoc. 82:918-924 (k-sample Anderson-Darling).
     Efron B., Tibshirani R.J. (1993) *An Introduction to the Bootstrap*, Chapman & Hall.
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd, shapely
+    >>> rng = np.random.default_rng(0)
+    >>> box = shapely.box(0, 0, 10_000, 10_000)
+    >>> def region(n):
+    ...     x, y = rng.uniform(0, 10_000, (2, n))
+    ...     return pd.DataFrame({"x_m": x, "y_m": y, "diameter_m": rng.uniform(50, 60, n)}), box
+    >>> table = contrast_regions({"west": region(150), "east": region(150)}, n_boot=199)
+    >>> sorted(set(table["quantity"]))[:3]
+    ['clark_evans_R', 'crater_density', 'csfd_slope']
     """
     if len(regions) < 2:
         raise InputError(f"contrast needs at least two regions, got {len(regions)}.",

@@ -162,6 +162,16 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
     ----------
     See the ``reference`` column of ``stats``; Besag J., Diggle P.J. (1977) Simple Monte
     Carlo tests for spatial pattern, Applied Statistics 26:327-333.
+
+    Examples
+    --------
+    >>> import numpy as np, shapely
+    >>> rng = np.random.default_rng(1)
+    >>> x, y = rng.uniform(0, 10_000, (2, 200))
+    >>> d = 50 * (1 - rng.uniform(size=200)) ** -0.5
+    >>> res = population_statistics(x, y, d, shapely.box(0, 0, 10_000, 10_000), n_simulations=19)
+    >>> 0.85 < res.stat("clark_evans_R") < 1.15
+    True
     """
     x, y, d = check_points(x_m, y_m, diameter_m, names=("x_m", "y_m", "diameter_m"))
     valid_area = check_area(valid_area)
