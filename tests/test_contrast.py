@@ -66,6 +66,16 @@ def test_feature_tests_agree_with_scipy_and_effect_sizes_by_brute_force():
     assert ad["statistic"] == pytest.approx(ref.statistic) and ad["p_value"] == pytest.approx(ref.pvalue)
 
 
+def test_degenerate_regions_give_nan_rows_not_errors():
+    a = pd.DataFrame({"x_m": [1.0, 2.0], "y_m": [1.0, 5.0], "diameter_m": [50.0, 60.0], "f": [1.0, 1.0]})
+    b = pd.DataFrame({"x_m": np.arange(10.0) * 900, "y_m": np.arange(10.0) * 500, "diameter_m": np.full(10, 50.0),
+                      "f": np.ones(10)})
+    out = contrast_regions({"a": (a, BOX), "b": (b, BOX)}, n_boot=99)
+    ad = _rows(out, "f", "a", "b", "Anderson-Darling")
+    assert np.isnan(ad["statistic"]) and np.isnan(ad["p_adjusted"])
+    assert "clark_evans_R" not in set(out["quantity"])   # two craters have no NN statistic
+
+
 def test_benjamini_hochberg_by_hand():
     # Benjamini & Hochberg 1995 (JRSS B 57:289): p_(i) m / i, then running minimum from the top
     rng = np.random.default_rng(2)

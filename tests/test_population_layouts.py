@@ -146,6 +146,17 @@ def test_mask_null_and_craters_outside_the_mask():
     assert res.n_craters == int(np.sum(d[:-1] >= res.completeness_diameter_m))
 
 
+@pytest.mark.parametrize("n", [0, 2, 6])
+def test_tiny_surveys_give_nan_not_errors(n):
+    # six craters in a row hugging a corner: no point lies far enough inside for K; the
+    # statistics that cannot be had are NaN (warnings are errors in this test run)
+    x = np.arange(n) * 10.0
+    res = population_statistics(x, x * 0.7, np.full(n, 20.0), BOX, n_simulations=9)
+    assert res.n_craters == n and len(res.stats) > 20
+    assert np.isnan(res.stat("ripley_L_max_deviation"))
+    assert res.cluster_id.shape == (n,)
+
+
 def test_bad_inputs_raise_morpho_errors():
     with pytest.raises(InputError):
         population_statistics([0, 1], [0], [1, 1], BOX)

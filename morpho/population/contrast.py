@@ -70,6 +70,8 @@ def _feature_rows(name, a, b, va, vb, rng, n_boot):
 
 
 def _anderson(*samples):
+    if np.unique(np.concatenate(samples)).size < 2:
+        return np.nan, np.nan  # one distinct value in all samples: nothing to compare
     with warnings.catch_warnings():
         # scipy warns when p lies outside its interpolation table (0.001-0.25); the
         # method text says so
