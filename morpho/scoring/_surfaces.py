@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["GUESS_JITTER", "jittered_guess", "surface_training_set"]
+__all__ = ["GUESS_JITTER", "jittered_guess", "rim_separation", "surface_training_set"]
 
 #: Relative sd of the radius guess and of the centre guess (in radii) handed to the
 #: morphometry: a detector's first guess is not exact, so neither is the training crater's.
@@ -29,6 +29,23 @@ def jittered_guess(rows, cols, radius_px, rng: np.random.Generator):
     r_guess = r * np.exp(rng.normal(0.0, GUESS_JITTER[0], n))
     d_row, d_col = rng.normal(0.0, GUESS_JITTER[1], (2, n)) * r
     return np.asarray(rows, np.float64) + d_row, np.asarray(cols, np.float64) + d_col, r_guess
+
+
+def rim_separation(craters: pd.DataFrame, every: pd.DataFrame, pixel_size_m: float) -> np.ndarray:
+    """Nearest centre distance to another crater over the sum of the two radii (1 = rims touch).
+
+    Parameters
+    ----------
+    craters, every : DataFrame
+        Truth tables (``row, col, diameter_m``); ``every`` holds all stamped craters.
+    pixel_size_m : float
+    """
+    r = craters["diameter_m"].to_numpy(np.float64) / 2.0 / pixel_size_m
+    r_all = every["diameter_m"].to_numpy(np.float64) / 2.0 / pixel_size_m
+    dist = np.hypot(craters["row"].to_numpy(np.float64)[:, None] - every["row"].to_numpy(np.float64)[None, :],
+                    craters["col"].to_numpy(np.float64)[:, None] - every["col"].to_numpy(np.float64)[None, :])
+    dist[dist < 1e-6] = np.inf  # the crater itself
+    return np.min(dist / (r[:, None] + r_all[None, :]), axis=1, initial=np.inf)
 
 
 def surface_training_set(hyps: dict, n_craters: int, band, *, body, seed: int, degradation,
@@ -54,7 +71,8 @@ def surface_training_set(hyps: dict, n_craters: int, band, *, body, seed: int, d
     -------
     DataFrame
         ``measure_craters`` columns plus ``family``, ``origin`` (impact/spot),
-        ``truth_degradation``, ``truth_complex``, ``truth_diameter_m``.
+        ``truth_degradation``, ``truth_complex``, ``truth_diameter_m``, ``truth_depth_diameter``,
+        ``truth_visible_fraction``, ``truth_separation`` (:func:`rim_separation`).
     """
     from ..bodies import get_body
     from ..morphometry import measure_craters
@@ -91,6 +109,9 @@ def surface_training_set(hyps: dict, n_craters: int, band, *, body, seed: int, d
         df["truth_complex"] = t["complex"].to_numpy()
         df["truth_diameter_m"] = t["diameter_m"].to_numpy()
         df["truth_depth_diameter"] = (t["depth_m"] / t["diameter_m"]).to_numpy()
+        df["truth_visible_fraction"] = t["visible_fraction"].to_numpy()
+        every = pd.concat([s.truth, s.hidden], ignore_index=True) if len(s.hidden) else s.truth
+        df["truth_separation"] = rim_separation(t, every, s.pixel_size_m)
         frames.append(df)
         total += len(df)
     return pd.concat(frames, ignore_index=True)

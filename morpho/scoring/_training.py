@@ -17,7 +17,7 @@ from ..errors import InputError
 from ._estimator import ImpactSpotClassifier
 from ._metrics import metrics_by_band
 from ._score import DERIVED_FEATURES, add_derived_features
-from ._surfaces import jittered_guess, surface_training_set
+from ._surfaces import jittered_guess, rim_separation, surface_training_set
 
 __all__ = [
     "TRAINING_BANDS",
@@ -300,8 +300,9 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
     Returns
     -------
     dict
-        ``{"bands": [...], "family_accuracy": float, "verdicts": {...}, "by_context": {context: [...]},
-        "n_unmeasured": int}``; ``context`` is ``patch`` (isolated crater) or ``surface`` (crowded).
+        ``{"bands": [...], "family_accuracy": float, "verdicts": {...}, "by_context": {setting: [...]},
+        "n_unmeasured": int}``; settings are :data:`SETTINGS` (isolated patch craters, and craters
+        on crowded surfaces whose rim is clear of, or overlaps, a neighbour's).
     """
     from ._score import score_craters
 
@@ -317,13 +318,26 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
         for origin in ("impact", "spot")
     }
     by_context = {}
-    if "context" in df:
-        for ctx in sorted(df["context"].unique()):
-            sel = (df["context"] == ctx).to_numpy()
-            by_context[str(ctx)] = metrics_by_band(is_impact[sel], scores["p_impact"].to_numpy()[sel],
-                                                   df["pixels_per_diameter"].to_numpy()[sel])
+    for label, sel in _settings(df).items():
+        if sel.any():
+            by_context[label] = metrics_by_band(is_impact[sel], scores["p_impact"].to_numpy()[sel],
+                                                df["pixels_per_diameter"].to_numpy()[sel])
     return {"bands": bands, "family_accuracy": fam_acc, "verdicts": verdicts, "by_context": by_context,
             "n_unmeasured": int(len(held_out) - len(df))}
+
+
+#: Labels of the held-out settings reported separately.
+SETTINGS = ("isolated", "crowded, rim clear", "crowded, rims overlap")
+
+
+def _settings(df: pd.DataFrame) -> dict:
+    """Row masks per setting: isolated patch craters; surface craters whose rim is clear of
+    every neighbour's (separation >= 1 radii sum) or overlaps one."""
+    ctx = df["context"].to_numpy() if "context" in df else np.full(len(df), "")
+    sep = df["truth_separation"].to_numpy(np.float64) if "truth_separation" in df else np.full(len(df), np.nan)
+    surface = ctx == "surface"
+    return {SETTINGS[0]: ctx == "patch", SETTINGS[1]: surface & (sep >= 1.0),
+            SETTINGS[2]: surface & (sep < 1.0)}
 
 
 def fresh_bowl_check(model: ImpactSpotClassifier, *, seed: int = 12345, n_surfaces: int = 3,
@@ -360,11 +374,7 @@ def fresh_bowl_check(model: ImpactSpotClassifier, *, seed: int = 12345, n_surfac
         feats = measure_craters(s.z, s.pixel_size_m, t["row"].to_numpy(), t["col"].to_numpy(), radius_px,
                                 n_boot=0, seed=seed)
         p_all.append(score_craters(feats, model)["p_impact"].to_numpy())
-        r_all = every["diameter_m"].to_numpy() / 2.0 / s.pixel_size_m
-        dist = np.hypot(t["row"].to_numpy()[:, None] - every["row"].to_numpy()[None, :],
-                        t["col"].to_numpy()[:, None] - every["col"].to_numpy()[None, :])
-        dist[dist < 1e-6] = np.inf  # the crater itself
-        sep_all.append(np.min(dist / (radius_px[:, None] + r_all[None, :]), axis=1))
+        sep_all.append(rim_separation(t, every, s.pixel_size_m))
     p = np.concatenate(p_all) if p_all else np.zeros(0)
     sep = np.concatenate(sep_all) if sep_all else np.zeros(0)
     ok = np.isfinite(p)
