@@ -43,8 +43,18 @@ def _row(quantity, a, b, statistic, p, effect, ci, method):
             "ci_high": float(ci[1]), "method": method}
 
 
-def _boot_idx(rng, n, n_boot):
-    return rng.integers(0, n, size=(n_boot, n))
+#: Bootstrap index matrices are built in blocks of at most this many entries (memory).
+_BLOCK = 2_000_000
+
+
+def _bootstrap(rng, n_boot, samples, stat):
+    """``stat(*resampled)`` for ``n_boot`` resamples (rows) of each sample, in memory-bounded blocks."""
+    step = max(1, _BLOCK // max(max(v.size for v in samples), 1))
+    out = []
+    for start in range(0, n_boot, step):
+        m = min(step, n_boot - start)
+        out.append(stat(*(v[rng.integers(0, v.size, size=(m, v.size))] for v in samples)))
+    return np.concatenate(out)
 
 
 def _feature_rows(name, a, b, va, vb, rng, n_boot):
@@ -52,15 +62,18 @@ def _feature_rows(name, a, b, va, vb, rng, n_boot):
     rows = []
     if va.size < 2 or vb.size < 2:
         return rows
-    ia, ib = _boot_idx(rng, va.size, n_boot), _boot_idx(rng, vb.size, n_boot)
-    med = np.median(va[ia], axis=1) - np.median(vb[ib], axis=1)
+    scale = 1.0 / (va.size * vb.size)
+
+    def both(ra, rb):
+        u = stats.mannwhitneyu(ra, rb, alternative="two-sided", axis=1, method="asymptotic").statistic
+        return np.column_stack([np.median(ra, axis=1) - np.median(rb, axis=1), 2.0 * u * scale - 1.0])
+
+    med, d_boot = _bootstrap(rng, n_boot, (va, vb), both).T
     ks = stats.ks_2samp(va, vb)
     rows.append(_row(name, a, b, ks.statistic, ks.pvalue, np.median(va) - np.median(vb), np.percentile(med, _CI),
                      "two-sample Kolmogorov-Smirnov; effect: difference of medians (a - b), bootstrap percentile CI"))
     mw = stats.mannwhitneyu(va, vb, alternative="two-sided")
-    delta = 2.0 * mw.statistic / (va.size * vb.size) - 1.0
-    u_boot = stats.mannwhitneyu(va[ia], vb[ib], alternative="two-sided", axis=1, method="asymptotic").statistic
-    d_boot = 2.0 * u_boot / (va.size * vb.size) - 1.0
+    delta = 2.0 * mw.statistic * scale - 1.0
     rows.append(_row(name, a, b, mw.statistic, mw.pvalue, delta, np.percentile(d_boot, _CI),
                      "Mann-Whitney U (two-sided); effect: Cliff's delta P(a > b) - P(a < b), bootstrap CI"))
     ad, ad_p = _anderson(va, vb)
@@ -116,7 +129,7 @@ def _sfd_rows(a, b, da, db, area_a, area_b, d_common):
 def _clark_evans_boot(x, y, area, perimeter, rng, n_boot):
     nn = nearest_neighbour_distances(x, y)
     expected, _ = donnelly_expectation(nn.size, area, perimeter)
-    boot = np.mean(nn[_boot_idx(rng, nn.size, n_boot)], axis=1) / expected
+    boot = _bootstrap(rng, n_boot, (nn,), lambda r: np.mean(r, axis=1)) / expected
     return float(np.mean(nn) / expected), boot
 
 
