@@ -59,7 +59,8 @@ class PopulationResult:
         Craters at or above the completeness diameter (those the statistics use).
     completeness_diameter_m : float
     sfd : pandas.DataFrame
-        Root-2 SFD table of all input craters (see :func:`morpho.population.sfd.sfd_table`).
+        Root-2 SFD table of all craters inside the valid area (see
+        :func:`morpho.population.sfd.sfd_table`).
     envelope : pandas.DataFrame
         ``r_m, L_m, L_low_m, L_high_m, L_mean_m`` for plotting Besag's L with its envelope.
     """
@@ -183,9 +184,10 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         raise InputError("diameter_m must be positive.", fix="drop craters without a measured diameter")
     n_all = x.size
     area = valid_area.area
-    dc = estimate_completeness(d) if completeness_diameter_m is None else float(completeness_diameter_m)
     # centres outside the mask would meet an empty null: they are left out and counted
     inside = shapely.intersects_xy(valid_area, x, y)
+    d_in = d[inside]
+    dc = estimate_completeness(d_in) if completeness_diameter_m is None else float(completeness_diameter_m)
     keep = (d >= dc) & inside
     xs, ys, ds = x[keep], y[keep], d[keep]
     n = xs.size
@@ -202,12 +204,12 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         else "set by the user", CATWG_REFERENCE)
     add("crater_density_per_km2", n / (area / 1e6), np.nan, n,
         "N(>= completeness diameter) / valid-data area", CATWG_REFERENCE)
-    fit = powerlaw_slope_ml(d, dc) if n_all else powerlaw_slope_ml([], 1.0)
+    fit = powerlaw_slope_ml(d_in, dc) if d_in.size else powerlaw_slope_ml([], 1.0)
     add("csfd_slope", fit.cumulative_slope, np.nan, fit.n,
         "cumulative log-log slope 1 - alpha; alpha by maximum likelihood above completeness", CLAUSET_REFERENCE)
     add("csfd_slope_err", fit.cumulative_slope_err, np.nan, fit.n,
         "standard error (alpha - 1)/sqrt(n)", CLAUSET_REFERENCE)
-    pf = production_function_fit(d, area, dc) if n_all else production_function_fit([], area, 1.0)
+    pf = production_function_fit(d_in, area, dc) if d_in.size else production_function_fit([], area, 1.0)
     add("production_function_ks", pf.ks_statistic, pf.p_value, pf.n,
         "one-sample Kolmogorov-Smirnov of diameters above completeness against the production-function "
         "shape, normalisation fitted", NEUKUM_REFERENCE)
@@ -311,6 +313,6 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         add("elongation_mean_azimuth_deg", ray.mean_axis_deg, np.nan, ray.n, "mean long-axis azimuth",
             RAYLEIGH_REFERENCE)
     stats_df = pd.DataFrame(rows, columns=list(STAT_COLUMNS))
-    table = sfd_table(d, area)
+    table = sfd_table(d_in, area)
     return PopulationResult(stats=stats_df, cluster_id=cluster_id, chain_id=chain_id, chains=chains, n_craters=n,
                             completeness_diameter_m=dc, sfd=table, envelope=envelope)
