@@ -21,10 +21,12 @@ __all__ = ["contrast_regions", "CONTRAST_COLUMNS", "default_features"]
 CONTRAST_COLUMNS = ("quantity", "region_a", "region_b", "statistic", "p_value", "p_adjusted",
                     "effect_size", "ci_low", "ci_high", "method")
 
-#: Columns that are positions, identifiers or bookkeeping, never compared as features.
+#: Columns that are positions, identifiers or bookkeeping, never compared as features;
+#: diameters are compared as SFDs, and azimuths are axial (0 = 180 degrees), which linear
+#: two-sample tests would misread.
 _NOT_FEATURES = {"x_m", "y_m", "center_x", "center_y", "lon", "lat", "row", "col", "radius_px",
                  "cluster_id", "chain_id", "diameter_m", "pixels_per_diameter", "detection_confidence",
-                 "rim_coverage"}
+                 "rim_coverage", "ellipse_azimuth_deg"}
 _CI = (2.5, 97.5)
 
 
