@@ -1,13 +1,14 @@
-"""Near-collinear crater triplets and chains.
+"""Near-collinear crater triplets and straight crater chains.
 
 A triplet (i, j, k) is aligned when j lies between i and k, each of i and k is linked
-to j (near and of similar size), and j's centre is within half a strip width of the line through i and k. Link
-length and strip width scale with crater size, so a chain of touching small craters
-and a chain of large craters are judged alike. The expected number under chance comes
-from Monte Carlo CSR in the survey mask with the observed diameters, the approach of
-Broadbent (1980) for alignments of random points, here restricted to neighbouring
-craters as in crater chains.
-"""
+to j (near, and of similar size), and j's centre is within half a strip width of the
+line through i and k. Link length and strip width scale with crater size, so a chain
+of touching small craters and a chain of large craters are judged alike. Triplets that
+share two craters and keep their direction join into chains, trimmed to the craters
+inside one strip. The expected numbers under chance come from Monte Carlo CSR in the
+survey mask with the observed diameters: the simulation approach of Broadbent (1980)
+for alignments of random points, restricted here to neighbouring craters as in crater
+chains (catenae)."""
 
 from __future__ import annotations
 
@@ -17,13 +18,14 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-__all__ = ["aligned_triplets", "extract_chains", "longest_chain", "LINK_FACTOR", "WIDTH_FACTOR", "MIN_CHAIN"]
+__all__ = ["aligned_triplets", "extract_chains", "longest_chain", "LINK_FACTOR", "SIZE_RATIO", "WIDTH_FACTOR",
+           "MAX_BEND", "MIN_CHAIN"]
 
 ALIGNMENT_REFERENCE = ("Broadbent 1980, JRSS A 143:109 (chance alignments by simulation); "
                        "Kendall & Kendall 1980, Adv. Appl. Prob. 12:380")
 
 #: Craters i, j are linked when their centres are closer than LINK_FACTOR times their
-#: mean diameter (crater chains are spaced about 1-3 diameters; common practice) or
+#: mean diameter (crater chains are spaced about 1-3 diameters; common practice, from memory) or
 #: than the CSR nearest-neighbour distance, whichever is larger.
 LINK_FACTOR = 5.0
 #: Linked craters differ in diameter by at most this factor: chains are strings of
