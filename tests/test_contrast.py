@@ -76,6 +76,26 @@ def test_degenerate_regions_give_nan_rows_not_errors():
     assert "clark_evans_R" not in set(out["quantity"])   # two craters have no NN statistic
 
 
+def test_elongation_azimuths_compared_as_axes():
+    # axial data (Mardia & Jupp 2000, s. 9.3): 170 deg and 10 deg are 20 deg apart, so a region
+    # around 0/180 and one around 90 differ; two regions around 0/180 do not
+    rng = np.random.default_rng(12)
+
+    def with_axes(frame, centre):
+        az = (centre + rng.normal(0, 12, len(frame))) % 180
+        return frame.assign(ellipse_azimuth_deg=az, ellipticity=1.3)
+
+    a = with_axes(random_frame(rng, 120), 0.0)
+    b = with_axes(random_frame(rng, 120), 90.0)
+    c = with_axes(random_frame(rng, 120), 178.0)
+    out = contrast_regions({"a": (a, BOX), "b": (b, BOX), "c": (c, BOX)}, n_boot=199)
+    ab = _rows(out, "elongation_azimuth", "a", "b", "long axes")
+    ac = _rows(out, "elongation_azimuth", "a", "c", "long axes")
+    assert ab["p_value"] <= 0.01 and abs(ab["effect_size"]) == pytest.approx(90, abs=6)
+    assert ac["p_value"] > 0.01 and abs(ac["effect_size"]) < 6
+    assert "ellipse_azimuth_deg" not in set(out["quantity"])
+
+
 def test_benjamini_hochberg_by_hand():
     # Benjamini & Hochberg 1995 (JRSS B 57:289): p_(i) m / i, then running minimum from the top
     rng = np.random.default_rng(2)

@@ -14,6 +14,7 @@ from .clusters import dbscan_clusters
 from .csr import check_area
 from .nearest_neighbour import donnelly_expectation, nearest_neighbour_distances
 from .sfd import estimate_completeness, powerlaw_slope_ml
+from .statistics import ELONGATED
 from .superposition import on_larger_rim
 
 __all__ = ["contrast_regions", "CONTRAST_COLUMNS", "default_features"]
@@ -252,6 +253,7 @@ def contrast_regions(regions, *, features=None, n_boot: int = 999, seed=0,
             rows += _feature_rows(f, a, b, va[np.isfinite(va)], vb[np.isfinite(vb)], rng, n_boot)
         rows += _sfd_rows(a, b, sa["d_all"], sb["d_all"], sa["area"], sb["area"], max(dc[a], dc[b]))
         rows += _verdict_rows(a, b, sa["df"], sb["df"])
+        rows += _azimuth_rows(a, b, sa["df"], sb["df"], rng, n_boot)
         rows += _spatial_rows(a, b, sa, sb, rng, n_boot)
     if len(data) > 2:
         for f in feats:
@@ -281,3 +283,36 @@ def _verdict_rows(a, b, dfa, dfb):
     v = np.sqrt(res.statistic / (table.to_numpy().sum() * (min(table.shape) - 1)))
     return [_row("verdict", a, b, res.statistic, res.pvalue, v, (np.nan, np.nan),
                  "chi-square test of verdict proportions (Pearson); effect: Cramer's V")]
+
+
+def _doubled_mean(axes_deg):
+    """Mean resultant vector(s) of doubled axes along the last axis, as complex numbers."""
+    return np.mean(np.exp(2j * np.deg2rad(axes_deg)), axis=-1)
+
+
+def _elongated_axes(df):
+    if "ellipse_azimuth_deg" not in df:
+        return np.empty(0)
+    az = pd.to_numeric(df["ellipse_azimuth_deg"], errors="coerce").to_numpy(float)
+    keep = np.isfinite(az)
+    if "ellipticity" in df:
+        keep &= pd.to_numeric(df["ellipticity"], errors="coerce").to_numpy(float) >= ELONGATED
+    return az[keep]
+
+
+def _azimuth_rows(a, b, dfa, dfb, rng, n_perm):
+    """Do two regions' crater long axes point alike? Permutation test on doubled angles."""
+    va, vb = _elongated_axes(dfa), _elongated_axes(dfb)
+    if va.size < 3 or vb.size < 3:
+        return []
+    pooled = np.r_[va, vb]
+    observed = abs(_doubled_mean(va) - _doubled_mean(vb))
+    perm = np.argsort(rng.uniform(size=(n_perm, pooled.size)), axis=1)
+    shuffled = pooled[perm]
+    null = np.abs(_doubled_mean(shuffled[:, :va.size]) - _doubled_mean(shuffled[:, va.size:]))
+    p = (1 + np.sum(null >= observed)) / (1 + n_perm)
+    axis_diff = (np.rad2deg(np.angle(_doubled_mean(va) / _doubled_mean(vb))) / 2.0)
+    return [_row("elongation_azimuth", a, b, observed, p, axis_diff, (np.nan, np.nan),
+                 f"long axes of craters with ellipticity >= {ELONGATED}: distance between the mean resultant "
+                 "vectors of doubled angles, permutation test (Mardia & Jupp 2000, s. 8.3 and 9.3); "
+                 "effect: difference of mean axes (degrees, a - b)")]
