@@ -72,7 +72,10 @@ def cli(ctx, verbose, quiet):
     mechanism. Impact is the consensus origin of planetary craters.
     """
     level = logging.WARNING if quiet else (logging.DEBUG if verbose > 1 else logging.INFO)
-    logging.basicConfig(level=level, format="%(levelname)s %(name)s: %(message)s", stream=sys.stderr)
+    # Third-party libraries stay at WARNING unless -vv; morpho's own logger follows -v/-q.
+    logging.basicConfig(level=logging.DEBUG if verbose > 1 else logging.WARNING,
+                        format="%(levelname)s %(name)s: %(message)s", stream=sys.stderr)
+    logging.getLogger("morpho").setLevel(level)
     ctx.ensure_object(dict)
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet
