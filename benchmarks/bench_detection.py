@@ -165,7 +165,7 @@ def main(argv=None):
         "Recall over true craters >= 10 px diameter; precision over detections >= 10 px.",
         "Radius range 4-100 px (diameters 8-200 px) for both methods; one process, timings on",
         "a shared 2-core machine (other jobs running), so speed is CPU time of this process",
-        "(single-threaded numpy/scipy), best of 3 runs; wall time likewise best of 3.",
+        "summed over threads (BLAS may use two), best of 3 runs; wall time likewise best of 3.",
         "Peak memory is Python-traced allocations (tracemalloc), in a separate run.",
         "",
         *summary, "", "## By diameter bin", "", *lines, ""])
