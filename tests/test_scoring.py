@@ -169,3 +169,24 @@ def test_same_seed_same_model(held_out):
     Xh = held_out[0].iloc[:200]
     np.testing.assert_array_equal(a.predict_proba(Xh), b.predict_proba(Xh))
     np.testing.assert_array_equal(a.typicality(Xh), b.typicality(Xh))
+
+
+def test_kth_distance_matches_scipy_kdtree():
+    # Independent reference: scipy.spatial.KDTree (Virtanen et al. 2020, Nat. Methods 17:261).
+    from scipy.spatial import KDTree
+
+    from morpho.scoring._typicality import kth_distance
+
+    rng = np.random.default_rng(0)
+    A, B = rng.normal(size=(500, 30)), rng.normal(size=(300, 30))
+    np.testing.assert_allclose(kth_distance(A, B, 5), KDTree(B).query(A, k=5)[0][:, -1], atol=1e-9)
+    np.testing.assert_allclose(kth_distance(A, B, 3, p=np.inf), KDTree(B).query(A, k=3, p=np.inf)[0][:, -1])
+
+
+def test_missing_feature_counts_as_departure(toy_model):
+    # A crater with an unmeasurable feature is less typical than the same crater measured.
+    row = fresh_pike_bowl(0.2)
+    holed = row.copy()
+    holed["rim_height_ratio"] = np.nan
+    t = toy_model.typicality(pd.concat([row, holed], ignore_index=True))[:, 0]
+    assert t[1] < t[0]

@@ -94,7 +94,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
     typicality_metric : {"euclidean", "chebyshev"}, default="euclidean"
         Distance in robust z-scores for typicality; Chebyshev lets one extreme feature
         decide.
-    max_reference : int, default=2000
+    max_reference : int, default=1000
         At most this many training craters per hypothesis are kept for typicality
         (random subsample), which bounds model size and scoring time.
     typicality_exclude : tuple of str, default=("pixels_per_diameter",)
@@ -143,7 +143,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         max_features=1.0,
         n_neighbors=5,
         typicality_metric="euclidean",
-        max_reference=2000,
+        max_reference=1000,
         typicality_exclude=("pixels_per_diameter",),
         random_state=None,
     ):
@@ -403,6 +403,13 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             block = X[start:start + step]
             rep = np.repeat(block[:, None, :], p, axis=1)
             rep[:, eye] = self.center_
-            lr = self._log10_lr(rep.reshape(-1, p)).reshape(block.shape[0], p)
-            out[start:start + step] = base[start:start + step, None] - lr
+            # Replacing a value by itself changes nothing: score only the rows that differ
+            # (most rows of the 0/1 presence flags).
+            same = (block == self.center_) | (np.isnan(block) & np.isnan(self.center_))
+            delta = np.zeros(block.shape)
+            todo = ~same
+            if todo.any():
+                lr = self._log10_lr(rep[todo])
+                delta[todo] = base[start:start + step][np.nonzero(todo)[0]] - lr
+            out[start:start + step] = delta
         return out
