@@ -77,8 +77,10 @@ def main(argv=None):
         "## Held-out synthetic craters (impact vs spot at p_impact = 0.5; equal numbers per hypothesis)",
         "",
         _table(ev["bands"], ["band", "n", "accuracy", "brier", "ece"]),
-        *[f"{ctx} (isolated: one crater per patch; crowded: mixed-family surfaces, rim clear of or "
-          f"overlapping a neighbour's):\n\n" + _table(rows, ["band", "n", "accuracy", "brier", "ece"])
+        "Settings: isolated = one crater per patch; crowded = mixed-family surfaces, the crater's rim "
+        "clear of or overlapping a neighbour's (centre distance below the sum of the radii).",
+        "",
+        *[f"### {ctx}\n\n" + _table(rows, ["band", "n", "accuracy", "brier", "ece"])
           for ctx, rows in ev["by_context"].items()],
         f"Spot-family accuracy (spot craters): {ev['family_accuracy']:.3f}. "
         f"Unmeasurable craters dropped: {ev['n_unmeasured']}.",
