@@ -15,7 +15,7 @@ from sklearn.calibration import calibration_curve
 from sklearn.metrics import brier_score_loss
 
 from morpho.dictionary import get_field
-from morpho.errors import InputError
+from morpho.errors import InputError, MorphoWarning
 from morpho.scoring import (
     SCORE_COLUMNS,
     ImpactSpotClassifier,
@@ -141,8 +141,13 @@ def test_score_columns_follow_the_dictionary(toy_model, held_out):
     assert set(ok["spot_family"]) <= {"cathode_spot", "anode_spot"}
     lr = np.log10(ok["p_impact"] / (1 - ok["p_impact"]))
     np.testing.assert_allclose(ok["log10_lr"], lr, atol=1e-9)
-    with pytest.raises(InputError, match="rim_sharpness"):
-        score_craters(df.drop(columns="rim_sharpness"), toy_model)
+    with pytest.warns(MorphoWarning, match="rim_sharpness"):
+        partial = score_craters(df.drop(columns="rim_sharpness"), toy_model)
+    assert partial["p_impact"].iloc[1:].notna().all()
+    # A missing feature counts against typicality, never for it.
+    assert (partial["typicality_impact"].iloc[1:] <= out["typicality_impact"].iloc[1:] + 1e-12).all()
+    with pytest.raises(InputError, match="most of the model's feature columns"):
+        score_craters(df[["radius_px", "depth_diameter_ratio"]], toy_model)
 
 
 def test_spot_family_is_told_apart(toy_model, held_out):

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import InputError, MorphoWarning
 from ._estimator import log10_lr_from_p
 
 __all__ = ["SCORE_COLUMNS", "N_EVIDENCE", "DERIVED_FEATURES", "add_derived_features", "model_features",
@@ -60,7 +62,8 @@ def model_features(features_df: pd.DataFrame, model) -> pd.DataFrame:
     Raises
     ------
     InputError
-        A feature column is missing.
+        More than half of the model's feature columns are missing (a few missing ones are
+        filled with NaN, with a :class:`~morpho.errors.MorphoWarning`).
     """
     names = getattr(model, "feature_names_in_", None)
     if names is None:
@@ -70,9 +73,16 @@ def model_features(features_df: pd.DataFrame, model) -> pd.DataFrame:
     if "pixels_per_diameter" in names and "pixels_per_diameter" not in df and "radius_px" in df:
         df = df.assign(pixels_per_diameter=2.0 * df["radius_px"].astype(np.float64))
     missing = [n for n in names if n not in df.columns]
-    if missing:
-        raise InputError(f"the crater table lacks the model's feature columns {missing}.",
+    if 2 * len(missing) > len(names):
+        raise InputError(f"the crater table lacks most of the model's feature columns: {missing}.",
                          fix="measure the craters with morpho.morphometry.measure_craters first.")
+    if missing:
+        # A model from another morpho version: score on what is there (the trees take NaN,
+        # typicality counts it as a departure) rather than fail a whole survey.
+        warnings.warn(f"the crater table lacks the model's feature columns {missing}; they are scored "
+                      "as not measured. Rebuild the model with this morpho version (morpho train).",
+                      MorphoWarning, stacklevel=3)
+        df = df.assign(**{n: np.nan for n in missing})
     return df.loc[:, list(names)].astype(np.float64)
 
 
