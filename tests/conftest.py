@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
-from pathlib import Path
+from morpho._runtime import pin_numeric_threads
 
-import numpy as np
-import pytest
-import rasterio
-from affine import Affine
+# Tests compute like the CLI and Dask workers (one BLAS thread), before numpy loads.
+pin_numeric_threads()
+
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+import rasterio  # noqa: E402
+from affine import Affine  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[1]
 SHARED_DATA = REPO.parent / "shared" / "data"

@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
-import importlib
-import logging
-import sys
+from .._runtime import pin_numeric_threads
 
-import click
+# Before anything imports numpy: compute like a Dask worker (see morpho._runtime).
+pin_numeric_threads()
 
-from .. import __version__
-from ..errors import MorphoError
+import importlib  # noqa: E402
+import logging  # noqa: E402
+import sys  # noqa: E402
+
+import click  # noqa: E402
+
+from .. import __version__  # noqa: E402
+from ..errors import MorphoError  # noqa: E402
 
 __all__ = ["cli", "main"]
 

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 import shapely
+from threadpoolctl import threadpool_limits
 
 from ..ingest import DemInfo, DemTile, TileSpec, read_tile
 
@@ -116,11 +117,19 @@ def _measure(tile: DemTile, rows, cols, radius_px, params: TileParams) -> pd.Dat
 def survey_tile(info: DemInfo, spec: TileSpec, params: TileParams) -> pd.DataFrame:
     """Detect and measure the craters owned by one tile.
 
+    BLAS runs single-threaded inside a tile, as in Dask workers: tiles are the
+    unit of parallelism, and nested BLAS threads would only oversubscribe cores.
+
     Returns
     -------
     pandas.DataFrame
         One row per crater whose refined centre lies in the tile core.
     """
+    with threadpool_limits(limits=1):
+        return _survey_tile(info, spec, params)
+
+
+def _survey_tile(info: DemInfo, spec: TileSpec, params: TileParams) -> pd.DataFrame:
     from ..detection import detect_craters
 
     if spec.index in params.fail_tiles:
@@ -152,8 +161,14 @@ def survey_tile(info: DemInfo, spec: TileSpec, params: TileParams) -> pd.DataFra
 def measure_tile(info: DemInfo, spec: TileSpec, craters: pd.DataFrame, params: TileParams) -> pd.DataFrame:
     """Measure user-supplied craters (columns ``crater_id, x, y, diameter_m`` in the source CRS).
 
-    Only craters whose centre falls in this tile's core are measured here.
+    Only craters whose centre falls in this tile's core are measured here (BLAS
+    single-threaded, as in :func:`survey_tile`).
     """
+    with threadpool_limits(limits=1):
+        return _measure_tile(info, spec, craters, params)
+
+
+def _measure_tile(info: DemInfo, spec: TileSpec, craters: pd.DataFrame, params: TileParams) -> pd.DataFrame:
     tile = read_tile(info, spec)
     x = craters["x"].to_numpy(float)
     y = craters["y"].to_numpy(float)
