@@ -12,6 +12,7 @@ from ._refine import (
     MIN_COVERAGE,
     detrended_profiles,
     find_crest,
+    radius_batches,
     refine_craters,
     sharpen_crest,
 )
@@ -177,9 +178,8 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         probe = _measure_chunk(np.zeros((16, 16)), np.array([8.0]), np.array([8.0]),
                                np.array([3.0]), np.array([1.0]), n_azimuths, boot_idx, body)
         return probe.iloc[:0].assign(measure_status=pd.Series(dtype=object))
-    order = np.argsort(rad0, kind="stable")
     parts = []
-    for idx in np.array_split(order, max(1, int(np.ceil(order.size / chunk)))):
+    for idx in radius_batches(rad0, chunk):
         part = _measure_chunk(z, r0[idx], c0[idx], rad0[idx], spacing[idx], n_azimuths,
                               boot_idx, body)
         part.index = idx

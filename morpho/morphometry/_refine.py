@@ -147,9 +147,35 @@ def _crest_points(crest, azimuths, radius_px):
     return rp * np.cos(azimuths)[None, :], rp * np.sin(azimuths)[None, :]
 
 
-def n_radii_for(radius_px):
-    """Radial samples for a batch: ~0.35 px steps at its largest radius, within N_RADII."""
+#: Craters are batched by radius class (8 per octave) and every grid a batch uses is set by
+#: its class edges, never by its members: a crater's result then does not depend on which
+#: other craters share the call.
+CLASSES_PER_OCTAVE = 8
+
+
+def radius_class_edges(radius_px):
+    """Lower and upper radius (px) of the class of the largest member of a batch."""
     big = float(np.max(radius_px)) if np.size(radius_px) else 1.0
+    k = np.floor(np.log2(max(big, 1e-3)) * CLASSES_PER_OCTAVE)
+    return 2.0 ** (k / CLASSES_PER_OCTAVE), 2.0 ** ((k + 1) / CLASSES_PER_OCTAVE)
+
+
+def radius_batches(radius_px, chunk: int) -> list:
+    """Index arrays of craters grouped by radius class, each split into pieces of <= ``chunk``."""
+    rad = np.asarray(radius_px, dtype=float)
+    if rad.size == 0:
+        return [np.zeros(0, dtype=np.int64)]
+    cls = np.floor(np.log2(np.maximum(rad, 1e-3)) * CLASSES_PER_OCTAVE).astype(np.int64)
+    out = []
+    for k in np.unique(cls):
+        idx = np.flatnonzero(cls == k)
+        out.extend(np.array_split(idx, max(1, int(np.ceil(idx.size / chunk)))))
+    return out
+
+
+def n_radii_for(radius_px):
+    """Radial samples for a batch: ~0.35 px steps at its class's upper radius, within N_RADII."""
+    big = radius_class_edges(radius_px)[1]
     return int(np.clip(np.ceil(R_MAX * big / 0.35) + 1, *N_RADII))
 
 
@@ -211,10 +237,10 @@ def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter
     z = as_dem(z)
     r0, c0, rad0 = as_centres(rows, cols, radius_px)
     as_spacing(spacing_m, r0.size)
-    # Batches of similar size share a radial grid fine enough for their largest member.
-    order = np.argsort(rad0, kind="stable")
-    parts = [_refine_chunk(z, r0[idx], c0[idx], rad0[idx], n_azimuths, n_iter, window)
-             for idx in np.array_split(order, max(1, int(np.ceil(order.size / chunk))))]
+    # Batches of one radius class share a radial grid set by the class (see radius_batches).
+    batches = radius_batches(rad0, chunk)
+    order = np.concatenate(batches)
+    parts = [_refine_chunk(z, r0[idx], c0[idx], rad0[idx], n_azimuths, n_iter, window) for idx in batches]
     out = pd.concat(parts, ignore_index=True)
     result = out.copy()
     result.iloc[order] = out.to_numpy()
@@ -232,8 +258,9 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
     # ~0.25 px steps across the window: a coarse grid biases the parabolic peak of an
     # asymmetric (steep wall, gentle flank) crest outwards.
     # The sharpening stencil reaches up to b inside the window's lower edge.
-    lo = max(0.0, window[0] - float(np.max(stencil(rad)[1], initial=0.15)) - 0.02)
-    n_win = (window[1] - lo) * float(np.max(rad, initial=1.0)) / 0.25
+    lo_edge, hi_edge = radius_class_edges(rad)
+    lo = max(0.0, window[0] - float(np.max(stencil(np.array([lo_edge]))[1], initial=0.15)) - 0.02)
+    n_win = (window[1] - lo) * hi_edge / 0.25
     grid = np.linspace(lo, window[1], int(np.clip(np.ceil(n_win), 12, 500)))
     grid = np.concatenate([grid, np.linspace(1.5, R_MAX, 9)[np.linspace(1.5, R_MAX, 9) > window[1]]])
     for _ in range(n_iter):
