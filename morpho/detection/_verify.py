@@ -36,7 +36,7 @@ __all__ = ["Verified", "verify_candidates"]
 _N_RADII = 49  # 0 .. 2 radii in steps of 1/24
 _R_MAX = 2.0
 _WIN = (0.5, 1.5)  # rim-crest search window, radii
-_COVER_MAX = 1.2  # rim coverage counts valid profiles out to this radius
+_COVER_MIN, _COVER_MAX = 0.8, 1.2  # rim coverage: profiles valid over this band of radii
 _RING = (1.3, 2.0)  # surroundings for the regional plane, radii
 _SUBSAMPLE = 0.0
 _CHUNK = 1500
@@ -109,8 +109,10 @@ def _crests(d, r_norm):
     """Per-azimuth rim crest: normalised radius, height, crest-found and window-valid flags."""
     i0, i1 = np.searchsorted(r_norm, _WIN[0]), np.searchsorted(r_norm, _WIN[1], side="right")
     win = d[:, :, i0:i1]
-    # Coverage: the rim zone (0.5 .. 1.2 radii) on valid data (dictionary: rim_coverage).
-    finite = np.isfinite(d[:, :, i0:np.searchsorted(r_norm, _COVER_MAX, side="right")]).all(axis=2)
+    # Coverage: the rim band (0.8 .. 1.2 radii) on valid data (dictionary: rim_coverage). Nodata
+    # on the inner wall or floor does not hide the rim, so it does not count against coverage.
+    c0, c1 = np.searchsorted(r_norm, _COVER_MIN), np.searchsorted(r_norm, _COVER_MAX, side="right")
+    finite = np.isfinite(d[:, :, c0:c1]).all(axis=2)
     idx = np.argmax(np.where(np.isfinite(win), win, -np.inf), axis=2)
     height = np.take_along_axis(win, idx[..., None], axis=2)[..., 0]
     # Parabolic sub-sample peak position where both neighbours exist.
