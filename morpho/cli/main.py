@@ -81,9 +81,7 @@ def cli(ctx, verbose, quiet):
     logging.basicConfig(level=logging.DEBUG if verbose > 1 else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s", stream=sys.stderr)
     logging.getLogger("morpho").setLevel(level)
-    # Dask configures its own loggers at INFO; keep them quiet unless -vv.
-    for name in ("distributed", "dask"):
-        logging.getLogger(name).setLevel(logging.DEBUG if verbose > 1 else logging.WARNING)
+
     ctx.ensure_object(dict)
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet

@@ -151,6 +151,10 @@ def _run_one(func, first_arg, spec, extra_args):
 def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record):
     from dask.distributed import Client, LocalCluster, as_completed
 
+    # distributed sets its loggers to INFO when imported; keep them quiet unless morpho is at DEBUG.
+    if not log.isEnabledFor(logging.DEBUG):
+        for name in ("distributed", "dask"):
+            logging.getLogger(name).setLevel(logging.WARNING)
     cluster = None
     if scheduler is None:
         cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
