@@ -211,28 +211,26 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
     return res, chains
 
 
-def _score(craters: pd.DataFrame, model):
-    from ..scoring import default_model_path, load_model, score_craters
+def _load_scorer(model):
+    """Load the scoring model before any tile runs, so a bad model file fails fast."""
+    from ..scoring import default_model_path, load_model
 
-    if model is None or model == "default":
-        model_path = default_model_path()
-    else:
-        model_path = Path(model)
-    fitted = load_model(model_path)
-    return score_craters(craters, fitted), model_path
+    model_path = default_model_path() if model is None or model == "default" else Path(model)
+    return load_model(model_path), model_path
 
 
-def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model, params: dict, t_start: float,
+def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params: dict, t_start: float,
             started: str, failed: dict, command: str, unmeasured=None) -> SurveyResult:
     from ..outputs import run_provenance
     from ..scaling import add_scaling_columns
+    from ..scoring import score_craters
 
     footprint_src = valid_footprint(info)
-    model_path = None
+    fitted, model_path = model
     envelope = None
     if len(df):
         df = add_scaling_columns(df, info.body)
-        scores, model_path = _score(df, model)
+        scores = score_craters(df, fitted)
         for col in scores.columns:
             df[col] = scores[col].to_numpy()
         pop, chains = _population(df, info, footprint_src, seed)
@@ -342,6 +340,7 @@ def survey(
     started = datetime.now(UTC).isoformat(timespec="seconds")
     info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
                     z_offset=z_offset, min_diameter_px=min_diameter_px)
+    scorer = _load_scorer(model)
     specs, max_d = _tiling(info, tile_size, max_diameter_px)
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
@@ -363,7 +362,7 @@ def survey(
         "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
         "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
     }
-    return _finish(df, info, seed=seed, model=model, params=record, t_start=t_start, started=started,
+    return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
                    failed=run.failed, command="survey")
 
 
@@ -409,6 +408,7 @@ def measure(
     started = datetime.now(UTC).isoformat(timespec="seconds")
     info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
                     z_offset=z_offset, min_diameter_px=4)
+    scorer = _load_scorer(model)
     need = {"crater_id", "x", "y", "diameter_m"}
     if not need <= set(craters.columns):
         raise InputError(f"crater table lacks columns {sorted(need - set(craters.columns))}.",
@@ -442,6 +442,6 @@ def measure(
         "n_boot": n_boot, "workers": workers, "scheduler": scheduler, "n_listed": len(craters),
         "bad_rows": bad_rows or {}, "unmeasured": unmeasured,
     }
-    return _finish(df, info, seed=seed, model=model, params=record, t_start=t_start, started=started,
+    return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
                    failed=run.failed, command="measure", unmeasured=pd.DataFrame(unmeasured,
                    columns=["crater_id", "reason"]))
