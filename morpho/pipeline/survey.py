@@ -229,11 +229,15 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
     fitted, model_path = model
     envelope = None
     if len(df):
+        t0 = time.perf_counter()
         df = add_scaling_columns(df, info.body)
         scores = score_craters(df, fitted)
         for col in scores.columns:
             df[col] = scores[col].to_numpy()
+        t1 = time.perf_counter()
         pop, chains = _population(df, info, footprint_src, seed)
+        log.info("scaling + scoring %.1f s, population statistics %.1f s (%d craters)",
+                 t1 - t0, time.perf_counter() - t1, len(df))
         df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
         df["chain_id"] = np.asarray(pop.chain_id, dtype="int64")
         population = pop.stats
@@ -347,6 +351,7 @@ def survey(
                         fail_tiles=tuple(_fail_tiles))
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
                     run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress)
+    log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(df):
