@@ -104,8 +104,8 @@ def prepare_surface(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     ok = np.isfinite(sub)
     design = np.column_stack([np.ones(ok.sum()), yy[ok], xx[ok]])
     coef = np.linalg.lstsq(design, sub[ok], rcond=None)[0]
-    yy, xx = np.mgrid[0:h, 0:w]
-    detr = z - (coef[0] + coef[1] * yy + coef[2] * xx)
+    # Broadcast rows and columns: no full-size index grids.
+    detr = z - (coef[0] + coef[1] * np.arange(h)[:, None] + coef[2] * np.arange(w)[None, :])
     if not valid.all():
         idx = ndimage.distance_transform_edt(~valid, return_distances=False, return_indices=True)
         detr = detr[tuple(idx)]
@@ -155,10 +155,12 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
     norm = np.maximum(mag, np.maximum(rms, floor))
     ux = gx / norm
     uy = gy / norm
+    del gx, gy, mag, rms, norm  # full-resolution temporaries: free before the scale loop
     if not all_valid:
         ux *= vf
         uy *= vf
     div = np.gradient(ux, axis=1) + np.gradient(uy, axis=0)
+    del ux, uy
 
     sig = radii / _C
     out = np.empty((radii.size,) + level.shape, dtype=np.float32)
@@ -186,11 +188,19 @@ def _scale_space_maxima(resp: np.ndarray, threshold: float):
     A 2-D maximum filter per scale, then a comparison with the filtered neighbours in scale:
     the same set as a 3-D maximum filter, with one separable pass fewer.
     """
-    flat = np.stack([ndimage.maximum_filter(layer, size=3, mode="nearest") for layer in resp])
-    up = np.concatenate([flat[1:], flat[-1:]])
-    down = np.concatenate([flat[:1], flat[:-1]])
-    is_max = (resp >= flat) & (resp >= up) & (resp >= down) & (resp > threshold)
-    return np.nonzero(is_max)
+    flat = [ndimage.maximum_filter(layer, size=3, mode="nearest") for layer in resp]
+    last = len(flat) - 1
+    found = []
+    # Layer by layer (no stacked up/down copies): peak memory stays a few layers, not 4 x resp.
+    for j, layer in enumerate(resp):
+        is_max = (layer >= flat[j]) & (layer >= flat[min(j + 1, last)]) & (layer >= flat[max(j - 1, 0)])
+        is_max &= layer > threshold
+        rr, cc = np.nonzero(is_max)
+        found.append((np.full(rr.size, j, dtype=np.intp), rr, cc))
+    if not found:
+        empty = np.zeros(0, dtype=np.intp)
+        return empty, empty, empty
+    return tuple(np.concatenate([f[k] for f in found]) for k in range(3))
 
 
 def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
