@@ -305,6 +305,7 @@ def find_candidates(
                 cols.append(cc * factor)
                 rads.append(radii[jj] * factor)
                 scores.append(np.full(jj.size, threshold))
+            del resp, sm  # this level's full-size maps are not needed while the next is built
         # Next octave: antialias then keep every second pixel; level pixel i -> full i * factor.
         level = ndimage.gaussian_filter(level, 1.0)[::2, ::2]
         vmask = ndimage.gaussian_filter(vmask.astype(np.float64), 1.0)[::2, ::2] > 0.5
