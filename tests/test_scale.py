@@ -23,6 +23,7 @@ N = 384
 SPACING = 40.0
 TILE = 128  # 9 tiles
 MAXD = 40   # px -> overlap 50 px
+BORDER = [[128, 60], [256, 200], [100, 128], [300, 256]]  # crater centres on tile borders (row, col)
 
 
 @pytest.fixture(scope="module")
@@ -32,8 +33,15 @@ def crater_dem(tmp_path_factory):
     yy, xx = np.mgrid[0:N, 0:N].astype(float)
     z = rng.normal(0, 0.5, (N, N))
     centres = rng.uniform(15, N - 15, (30, 2))
-    centres[:4] = [[128, 60], [256, 200], [100, 128], [300, 256]]  # on tile borders
-    for (r0, c0), d_px in zip(centres, rng.uniform(12, 30, len(centres)), strict=True):
+    centres[:4] = BORDER  # on tile borders
+    diam = rng.uniform(12, 30, len(centres))
+    diam[:4] = 24.0
+    # Keep the planted border craters whole: no random crater overlaps them.
+    gap = np.hypot(*(centres[4:, None, :] - centres[None, :4, :]).transpose(2, 0, 1))
+    clear = (gap > 0.6 * (diam[4:, None] + diam[None, :4])).all(axis=1)
+    centres = np.concatenate([centres[:4], centres[4:][clear]])
+    diam = np.concatenate([diam[:4], diam[4:][clear]])
+    for (r0, c0), d_px in zip(centres, diam, strict=True):
         z += pike_bowl(np.hypot(yy - r0, xx - c0) * SPACING, d_px * SPACING)
     path = tmp_path_factory.mktemp("scale") / "field.tif"
     return write_raster(path, z.astype("float32"), crs=MOON_STERE,
@@ -59,7 +67,7 @@ def test_tiled_survey_finds_border_craters_once(serial, crater_dem):
     d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
     np.fill_diagonal(d, np.inf)
     assert (d.min(axis=1) > 0.25 * c["diameter_m"].to_numpy()).all()
-    for r0, c0 in [(128, 60), (256, 200), (100, 128), (300, 256)]:
+    for r0, c0 in BORDER:
         x, y = (c0 + 0.5) * SPACING, -(r0 + 0.5) * SPACING
         assert np.hypot(c["center_x"] - x, c["center_y"] - y).min() < 3 * SPACING
 
