@@ -17,6 +17,7 @@ __all__ = [
     "CRATER_COLUMNS",
     "POPULATION_FIELDS",
     "CHAIN_FIELDS",
+    "ENVELOPE_FIELDS",
     "get_field",
     "dictionary_table",
 ]
@@ -39,6 +40,8 @@ CRATER_FIELDS: tuple[Field, ...] = _expand(
 POPULATION_FIELDS: tuple[Field, ...] = tuple(_population.FIELDS)
 #: Columns of the ``chains`` layer.
 CHAIN_FIELDS: tuple[Field, ...] = tuple(_population.CHAIN_FIELDS)
+#: Columns of the ``ripley_l`` layer (Besag's L with its CSR envelope).
+ENVELOPE_FIELDS: tuple[Field, ...] = tuple(_population.ENVELOPE_FIELDS)
 
 FIELDS: dict[str, Field] = {f.name: f for f in CRATER_FIELDS}
 if len(FIELDS) != len(CRATER_FIELDS):  # pragma: no cover - guards editing mistakes

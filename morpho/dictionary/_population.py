@@ -41,3 +41,15 @@ CHAIN_FIELDS = (
     Field("azimuth_deg", "degree", "float64", "Chain axis, clockwise from local north (+y), in [0, 180).",
           "first principal axis of the member centres", "Mardia & Jupp 2000, Directional Statistics (axial data)"),
 )
+
+ENVELOPE_FIELDS = (
+    Field("r_m", "m", "float64", "Distance r at which Besag's L is evaluated.", "", "Besag 1977, JRSS B 39:193"),
+    Field("L_m", "m", "float64", "Observed Besag's L(r) = sqrt(K(r)/pi) of the craters above completeness.",
+          "Ripley's K with border edge correction", "Ripley 1977, JRSS B 39:172; Besag 1977"),
+    Field("L_low_m", "m", "float64", "Lower edge of the CSR envelope of L(r).",
+          "minimum over Monte Carlo CSR patterns simulated inside the valid-data mask", "Besag & Diggle 1977, Appl. Stat. 26:327"),
+    Field("L_high_m", "m", "float64", "Upper edge of the CSR envelope of L(r).",
+          "maximum over the same simulations", "Besag & Diggle 1977, Appl. Stat. 26:327"),
+    Field("L_mean_m", "m", "float64", "Mean L(r) over the CSR simulations (about r under CSR).",
+          "mean over the same simulations", "Ripley 1976, J. Appl. Prob. 13:255"),
+)

@@ -39,8 +39,7 @@ _POPULATION_DTYPES = {"statistic": "str", "value": "float64", "p_value": "float6
                       "method": "str", "reference": "str"}
 #: Columns of the ``ripley_l`` layer: Besag's L(r) with the CSR simulation envelope,
 #: as returned in ``PopulationResult.envelope`` (all metres).
-ENVELOPE_DTYPES = {"r_m": "float64", "L_m": "float64", "L_low_m": "float64", "L_high_m": "float64",
-                   "L_mean_m": "float64"}
+ENVELOPE_DTYPES = {f.name: f.dtype for f in dictionary.ENVELOPE_FIELDS}
 _DICT_FIX = "declare the column in morpho/dictionary/_<section>.py or drop it before writing"
 
 
