@@ -18,8 +18,9 @@ FIELDS = (
           "2 x mean rim-crest radius from a least-squares circle fit to the rim crest found on radial profiles, corrected for the local map scale",
           "Pike 1977, Impact and Explosion Cratering (Pergamon) 489-509; Kasa 1976 IEEE Trans. Instrum. Meas. 25:8", has_error=True),
     Field("detection_confidence", "1", "float64", "Confidence in [0, 1] that this is a crater.",
-          "detector score combined with the share of azimuths showing a rim crest and interior depression",
-          "common practice"),
+          "product of crest share, crest roundness, depth/diameter against a diameter-dependent floor, "
+          "depth/roughness and crest-radius agreement on radial profiles",
+          "Loy & Zelinsky 2003, IEEE TPAMI 25:959 (candidates); thresholds set on morpho.synth scenes"),
     Field("rim_coverage", "1", "float64", "Share of profile azimuths on which a rim crest was found on valid data, in [0, 1].",
           "azimuths with a rim crest on valid samples divided by the number of azimuths; < 1 at DEM edges and nodata",
           "common practice"),
