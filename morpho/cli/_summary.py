@@ -18,6 +18,11 @@ def print_summary(result, out, seconds: float, n_pixels: int) -> None:
     if len(craters) and "verdict" in craters:
         counts = craters["verdict"].value_counts().to_dict()
         lines.append("verdicts: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items())))
+    if len(craters) and "scoring_domain" in craters:
+        n_out = int((craters["scoring_domain"].astype(str) != "").sum())
+        if n_out:
+            lines.append(f"outside the scoring model's training domain: {n_out} "
+                         "(verdict 'neither'; reasons in the scoring_domain column)")
     if result.unmeasured is not None and len(result.unmeasured):
         lines.append(f"not measured: {len(result.unmeasured)} (reasons in the run layer)")
     if result.partial:

@@ -44,9 +44,9 @@ FIELDS = (
     ),
     Field(
         "verdict", "", "str",
-        "'impact', 'discharge', 'neither' (atypical under both: both typicalities < 0.01), 'undecided' "
-        "(weak likelihood ratio |log10_lr| < 0.5, or favoured hypothesis atypical), or 'unscored' "
-        "(no usable features).",
+        "'impact', 'discharge', 'neither' (atypical under both: both typicalities < 0.01, or outside the "
+        "model's training domain, see scoring_domain), 'undecided' (weak likelihood ratio |log10_lr| < 0.5, "
+        "or favoured hypothesis atypical), or 'unscored' (no usable features).",
         "thresholds are class constants of ImpactSpotClassifier (TYPICALITY_THRESHOLD, LR_THRESHOLD)",
         "Kass & Raftery 1995, J. Am. Stat. Assoc. 90:773-795 (evidence scale); common practice (1 % tail)",
     ),
@@ -69,5 +69,12 @@ FIELDS = (
         "Probability of spot_family among the spot families (equal priors), given that the crater is spot-like.",
         "predict_proba of the spot-family classifier",
         "Friedman 2001, Ann. Stat. 29:1189",
+    ),
+    Field(
+        "scoring_domain", "", "str",
+        "Empty when the crater lies inside the scoring model's training domain; otherwise why not "
+        "(resolution, size, degradation). Verdicts outside the domain are set to 'neither'.",
+        "training ranges of the model: 10-80 px per diameter, D <= 5 x transition diameter, kappa t/D^2 <= 0.02",
+        "common practice (no extrapolation of a classifier beyond its training data)",
     ),
 )

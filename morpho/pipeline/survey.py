@@ -223,7 +223,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
             started: str, failed: dict, command: str, unmeasured=None) -> SurveyResult:
     from ..outputs import run_provenance
     from ..scaling import add_scaling_columns
-    from ..scoring import score_craters
+    from ..scoring import score_craters, training_domain_notes
 
     footprint_src = valid_footprint(info)
     fitted, model_path = model
@@ -234,6 +234,11 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
         scores = score_craters(df, fitted)
         for col in scores.columns:
             df[col] = scores[col].to_numpy()
+        # Outside the training domain the classifier extrapolates: flag it, claim neither.
+        notes = training_domain_notes(df, info.body)
+        df["scoring_domain"] = notes
+        outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
+        df.loc[outside, "verdict"] = "neither"
         t1 = time.perf_counter()
         pop, chains = _population(df, info, footprint_src, seed)
         log.info("scaling + scoring %.1f s, population statistics %.1f s (%d craters)",

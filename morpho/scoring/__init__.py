@@ -19,6 +19,7 @@ build_training_set, train_model, evaluate_model
 """
 
 from ._card import build_card, render_card_markdown, write_card
+from ._domain import training_domain_notes
 from ._estimator import ImpactSpotClassifier, log10_lr_from_p
 from ._metrics import RESOLUTION_BANDS, binary_metrics, expected_calibration_error, metrics_by_band
 from ._persistence import (
@@ -35,6 +36,7 @@ __all__ = [
     "ImpactSpotClassifier",
     "log10_lr_from_p",
     "score_craters",
+    "training_domain_notes",
     "model_features",
     "SCORE_COLUMNS",
     "save_model",
