@@ -59,6 +59,12 @@ FAILURE_MODES = (
     "terrain (noise structure, background roughness, real degradation processes) shifts the scores.",
     "The spot-family shapes at planetary scale, including their depth/diameter ratios, are assumptions; "
     "p_spot_family tells the hypothesis files' families apart, not real discharge mechanisms.",
+    "Real saturated highland terrain (LOLA LDEM_4 lunar farside crop, 7.6 km/px, craters of 40-700 km at "
+    "~8-120 px): the raw scores favour the spot families for most craters, a domain-shift failure (degraded, "
+    "overlapping complex craters and basins unlike the synthetic training craters), not evidence. The survey "
+    "flags craters outside the training ranges (scoring_domain: < 10 or > 80 px per diameter, D > 5 transition "
+    "diameters, kappa t/D^2 > 0.02) and sets their verdict to 'neither' (360 of 416 there); 40 of the "
+    "remaining craters were still called 'discharge'. Do not read verdicts on such terrain as results.",
 )
 
 
