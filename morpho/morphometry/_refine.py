@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -147,6 +148,10 @@ def _crest_points(crest, azimuths, radius_px):
     return rp * np.cos(azimuths)[None, :], rp * np.sin(azimuths)[None, :]
 
 
+#: Crest points whose radius differs from the crater's median crest radius by more than this
+#: fraction are not used in the circle fit (neighbours' rims, high terrain; common practice).
+OUTLIER_FRACTION = 0.25
+
 #: Craters are batched by radius class (8 per octave) and every grid a batch uses is set by
 #: its class edges, never by its members: a crater's result then does not depend on which
 #: other craters share the call.
@@ -272,7 +277,13 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
         crest = sharpen_crest(zd, grid, crest, rad)
         coverage = np.isfinite(crest.r_norm).mean(axis=1)
         has_data = np.isfinite(zp).any(axis=(1, 2))
-        x, y = _crest_points(crest, az, rad)
+        # Crests far from the crater's typical crest radius are a neighbour's rim or high
+        # terrain, not this rim: left out of the circle fit (as in detection's verification).
+        with np.errstate(invalid="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows stay NaN
+            med = np.nanmedian(crest.r_norm, axis=1, keepdims=True)
+        inlier = np.abs(crest.r_norm - med) <= OUTLIER_FRACTION * med
+        x, y = _crest_points(Crest(np.where(inlier, crest.r_norm, np.nan), crest.z), az, rad)
         xc, yc, rf = fit_circle(x, y)
         good = (np.isfinite(rf) & (coverage >= MIN_COVERAGE) & ~diverged
                 & (np.hypot(xc, yc) < rad) & (rf > 0.5 * rad) & (rf < 2.0 * rad))
