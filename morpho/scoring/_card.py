@@ -63,8 +63,8 @@ FAILURE_MODES = (
     "~8-120 px): the raw scores favour the spot families for most craters, a domain-shift failure (degraded, "
     "overlapping complex craters and basins unlike the synthetic training craters), not evidence. The survey "
     "flags craters outside the training ranges (scoring_domain: < 10 or > 80 px per diameter, D > 5 transition "
-    "diameters, kappa t/D^2 > 0.02) and sets their verdict to 'neither' (360 of 416 there); 40 of the "
-    "remaining craters were still called 'discharge'. Do not read verdicts on such terrain as results.",
+    "diameters, kappa t/D^2 > 0.02) and sets their verdict to 'neither' (360 of 417 there); about 40 of the "
+    "remaining 57 craters were still called 'discharge'. Do not read verdicts on such terrain as results.",
 )
 
 
