@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
 import warnings
 from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import OutputError, OutputExistsError
+from ..errors import OutputError
 
 __all__ = ["write_surface", "check_surface_targets"]
 
@@ -41,38 +38,34 @@ def write_surface(surface, out_dir, name: str, overwrite: bool = False) -> dict[
     import geopandas as gpd
     import rasterio
 
+    from ..outputs._atomic import atomic_paths
+
     out = Path(out_dir).expanduser().absolute()
     targets = check_surface_targets(out, name, overwrite=overwrite)
     z = np.asarray(surface.z, dtype=np.float32)
     try:
-        tmp = Path(tempfile.mkdtemp(prefix=".morpho-synth-", dir=out))
-    except OSError as err:
-        raise OutputError(f"cannot write in the output folder: {err.strerror or err}.", path=out,
-                          fix="choose a folder you can write to") from err
-    try:
-        profile = dict(driver="GTiff", width=z.shape[1], height=z.shape[0], count=1, dtype="float32",
-                       crs=rasterio.crs.CRS.from_wkt(surface.crs.to_wkt()), transform=surface.transform,
-                       nodata=np.nan, compress="deflate", predictor=3, tiled=True, blockxsize=256,
-                       blockysize=256)
-        with rasterio.open(tmp / targets["dem"].name, "w", **profile) as dst:
-            dst.write(z, 1)
-            dst.update_tags(body=surface.body, pixel_size_m=repr(surface.pixel_size_m),
-                            generator="morpho.synth", seed=str(surface.params.get("seed", "")))
-            dst.set_band_description(1, "elevation (m)")
-        truth = surface.truth
-        truth.to_csv(tmp / targets["truth_csv"].name, index=False, float_format="%.6g")
-        gdf = gpd.GeoDataFrame(truth.copy(), geometry=gpd.points_from_xy(truth["center_x"], truth["center_y"]),
-                               crs=surface.crs.to_wkt())
-        with warnings.catch_warnings(), _fixed_gpkg_timestamp():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            gdf.to_file(tmp / targets["truth_gpkg"].name, layer="truth", driver="GPKG")
-        for t in targets.values():
-            os.replace(tmp / t.name, t)
+        with atomic_paths(list(targets.values())) as (tmp_dem, tmp_csv, tmp_gpkg):
+            profile = dict(driver="GTiff", width=z.shape[1], height=z.shape[0], count=1, dtype="float32",
+                           crs=rasterio.crs.CRS.from_wkt(surface.crs.to_wkt()), transform=surface.transform,
+                           nodata=np.nan, compress="deflate", predictor=3, tiled=True, blockxsize=256,
+                           blockysize=256)
+            with rasterio.open(tmp_dem, "w", **profile) as dst:
+                dst.write(z, 1)
+                dst.update_tags(body=surface.body, pixel_size_m=repr(surface.pixel_size_m),
+                                generator="morpho.synth", seed=str(surface.params.get("seed", "")))
+                dst.set_band_description(1, "elevation (m)")
+            truth = surface.truth
+            truth.to_csv(tmp_csv, index=False, float_format="%.6g")
+            gdf = gpd.GeoDataFrame(truth.copy(), geometry=gpd.points_from_xy(truth["center_x"], truth["center_y"]),
+                                   crs=surface.crs.to_wkt())
+            with warnings.catch_warnings(), _fixed_gpkg_timestamp():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                gdf.to_file(tmp_gpkg, layer="truth", driver="GPKG")
+    except OutputError:
+        raise
     except OSError as err:
         raise OutputError(f"cannot write the synthetic surface: {err}.", path=out,
                           fix="check free space and permissions") from err
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
     return targets
 
 
@@ -91,16 +84,13 @@ def _fixed_gpkg_timestamp():
 
 def check_surface_targets(out_dir, name: str, *, overwrite: bool) -> dict[str, Path]:
     """Check (before any work) that ``<name>.tif`` and its truth files can be written in ``out_dir``."""
+    from ..outputs._atomic import check_targets
+
     out = Path(out_dir).expanduser().absolute()
     if not name or set(name) - _NAME_OK:
         raise OutputError(f"name must be a plain file stem (letters, digits, _ - .); got {name!r}.",
                           path=out, fix="choose a name such as moon_synth_11")
-    if not out.is_dir():
-        raise OutputError("the output folder does not exist.", path=out, fix="create it first")
     targets = {"dem": out / f"{name}.tif", "truth_csv": out / f"{name}_truth.csv",
                "truth_gpkg": out / f"{name}_truth.gpkg"}
-    for t in targets.values():
-        if t.exists() and not overwrite:
-            raise OutputExistsError("the output file exists; not overwriting it.", path=t,
-                                    fix="pass --overwrite (overwrite=True) or choose another name")
+    check_targets(list(targets.values()), overwrite=overwrite)
     return targets
