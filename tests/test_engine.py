@@ -8,6 +8,7 @@ import pytest
 
 from morpho.ingest import plan_windows
 from morpho.pipeline import run_tiles
+from morpho.pipeline.engine import uses_dask
 
 
 def toy_tile(seed, spec, fail=()):
@@ -72,3 +73,51 @@ def test_resume_redoes_only_missing_tiles(tmp_path):
     assert redone == [5]
     assert resumed.reused == len(SPECS) - 1
     pd.testing.assert_frame_equal(_table(resumed), full)
+
+
+def test_before_first_failure_stops_the_run_before_anything_is_saved(tmp_path):
+    # common practice: a run that cannot finish (here: the survey's model failed to load)
+    # leaves no partial state behind for --resume to pick up.
+    run_dir = tmp_path / "run"
+    calls = []
+
+    def tile(seed, spec):
+        calls.append(spec.index)
+        return toy_tile(seed, spec)
+
+    def hook():
+        raise ValueError("model failed to load")
+
+    with pytest.raises(ValueError, match="model failed"):
+        run_tiles(tile, 7, SPECS, run_dir=run_dir, before_first=hook, progress=False)
+    assert calls == [0]
+    assert not run_dir.exists()
+
+
+def test_before_first_runs_once_before_the_first_save(tmp_path):
+    seen = []
+    run = run_tiles(toy_tile, 7, SPECS, run_dir=tmp_path / "run", progress=False,
+                    before_first=lambda: seen.append(len(list(tmp_path.glob("run/*.parquet")))))
+    assert seen == [0]
+    assert len(list(tmp_path.glob("run/*.parquet"))) == len(SPECS) == len(run.results)
+    assert run.cluster_seconds == 0.0
+
+
+@pytest.mark.parametrize(("n_tiles", "workers", "scheduler", "expected"), [
+    (1, 2, None, False),   # one tile: in-process, no cluster to start
+    (4, 1, None, False),
+    (4, 2, None, True),
+    (1, 1, "tcp://127.0.0.1:1", True),  # a given scheduler is always used
+])
+def test_uses_dask_only_when_workers_can_share_tiles(n_tiles, workers, scheduler, expected):
+    assert uses_dask(n_tiles, workers, scheduler) is expected
+
+
+@pytest.mark.slow
+def test_before_first_failure_on_a_local_cluster_closes_it_and_raises(tmp_path):
+    def hook():
+        raise ValueError("model failed to load")
+
+    with pytest.raises(ValueError, match="model failed"):
+        run_tiles(toy_tile, 7, SPECS, workers=2, run_dir=tmp_path / "run", before_first=hook, progress=False)
+    assert not (tmp_path / "run").exists()

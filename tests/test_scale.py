@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import subprocess
@@ -119,3 +120,28 @@ def test_killed_survey_resumes_to_the_same_result(tmp_path, crater_dem):
     pd.testing.assert_frame_equal(_key(a), _key(b))
     run = pyogrio.read_dataframe(out, layer="run").set_index("key")["value"]
     assert int(run["param.tiles_reused"]) == done_before
+
+
+def test_stage_times_add_up_to_the_survey_time(serial):
+    # common practice: a time breakdown must account for the whole, with no negative parts.
+    timing = json.loads(serial.run["timing_s"])
+    stages = ("open", "model_wait", "cluster", "tiles", "merge", "finish")
+    assert set(stages) <= set(timing)
+    assert all(timing[k] >= 0 for k in stages)
+    total = float(serial.run["seconds"])
+    assert 0.9 * total <= sum(timing[k] for k in stages) <= total + 0.01
+    assert timing["cluster"] == 0  # one worker: no cluster started
+    assert list(serial.run)[-1] == "caveats"
+
+
+@pytest.mark.slow
+def test_bad_model_loaded_beside_dask_tiles_stops_before_anything_is_kept(tmp_path, crater_dem):
+    from morpho.errors import ModelFileError
+
+    model = tmp_path / "broken.skops"
+    model.write_bytes(b"PK\x03\x04 not really a zip")
+    run_dir = tmp_path / "out.gpkg.morpho-run"
+    with pytest.raises(ModelFileError):
+        survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2, model=model,
+               run_dir=run_dir)
+    assert not run_dir.exists()

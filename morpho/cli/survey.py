@@ -9,7 +9,7 @@ from pathlib import Path
 import click
 
 from ._options import check_output, dem_options, output_option, run_options
-from ._summary import print_summary
+from ._summary import print_summary, seconds_since_process_start, stage_seconds
 
 #: exit code of a survey whose result misses failed tiles
 EXIT_PARTIAL = 5
@@ -42,6 +42,7 @@ def command(ctx, dem, output, overwrite, body, band, pixel_size, z_scale, z_offs
     out = check_output(output, overwrite)
     run_dir = out.with_name(out.name + ".morpho-run")
     quiet = (ctx.find_root().obj or {}).get("quiet", False)
+    startup = seconds_since_process_start()  # Python, imports and option parsing: a fixed cost
     t0 = time.perf_counter()
     result = survey(
         dem, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale, z_offset=z_offset,
@@ -49,16 +50,19 @@ def command(ctx, dem, output, overwrite, body, band, pixel_size, z_scale, z_offs
         n_boot=n_boot, seed=seed, model=model, workers=workers, scheduler=scheduler,
         run_dir=run_dir, resume=resume, progress=not quiet,
     )
+    t_write = time.perf_counter()
     result.write(out, overwrite=overwrite)
+    write_seconds = time.perf_counter() - t_write
     if preview:
         from ..outputs import render_preview_png
 
         render_preview_png(out, out.with_suffix(".png"), dem_path=dem, overwrite=overwrite)
     if not result.partial:
         shutil.rmtree(run_dir, ignore_errors=True)
-    seconds = time.perf_counter() - t0
+    seconds = (startup or 0.0) + time.perf_counter() - t0
     if not quiet:
         info_px = int(result.run.get("raster_rows", 0) or 0) * int(result.run.get("raster_cols", 0) or 0)
-        print_summary(result, Path(out), seconds, info_px)
+        print_summary(result, Path(out), seconds, info_px,
+                      stages=stage_seconds(result, startup=startup, write=write_seconds))
     if result.partial:
         ctx.exit(EXIT_PARTIAL)

@@ -5,6 +5,10 @@ same arguments; only the executor differs. Each finished tile is written to the
 run folder (``<output>.morpho-run/``) at once, so an interrupted survey resumes
 by redoing only the missing tiles. A tile that raises is retried once, then
 recorded as failed while the others complete.
+
+``before_first`` lets the caller finish work it started in the background (the survey
+loads its scoring model while the first tiles run) before any tile result is kept: if
+that work fails, the run stops with nothing written to the run folder.
 """
 
 from __future__ import annotations
@@ -21,7 +25,7 @@ from tqdm.auto import tqdm
 
 from ..ingest import TileSpec
 
-__all__ = ["TileRun", "run_tiles"]
+__all__ = ["TileRun", "run_tiles", "uses_dask"]
 
 log = logging.getLogger(__name__)
 
@@ -37,15 +41,18 @@ class TileRun:
     failed : dict
         Tile key -> error text, for tiles that failed twice.
     seconds : float
-        Wall time.
+        Wall time, including ``cluster_seconds``.
     reused : int
         Tiles taken from the run folder (``resume``).
+    cluster_seconds : float
+        Starting and closing the Dask client and local cluster (a fixed cost; 0 when serial).
     """
 
     results: list = field(default_factory=list)
     failed: dict = field(default_factory=dict)
     seconds: float = 0.0
     reused: int = 0
+    cluster_seconds: float = 0.0
 
 
 def _cache_path(run_dir: Path, spec: TileSpec) -> Path:
@@ -54,6 +61,7 @@ def _cache_path(run_dir: Path, spec: TileSpec) -> Path:
 
 def _save(run_dir: Path, spec: TileSpec, df: pd.DataFrame) -> None:
     target = _cache_path(run_dir, spec)
+    run_dir.mkdir(parents=True, exist_ok=True)
     tmp = target.with_suffix(".parquet.tmp")
     df.to_parquet(tmp, index=False)
     os.replace(tmp, target)
@@ -70,6 +78,7 @@ def run_tiles(
     run_dir: Path | None = None,
     resume: bool = False,
     progress: bool = True,
+    before_first: Callable[[], None] | None = None,
 ) -> TileRun:
     """Run ``func(first_arg, spec, *extra_args)`` for every tile.
 
@@ -92,6 +101,9 @@ def run_tiles(
         Reuse tiles already in ``run_dir``.
     progress : bool
         Show a progress bar over tiles.
+    before_first : callable, optional
+        Called once, before the first computed tile is recorded or saved; whatever it
+        raises stops the run (the cluster is closed, nothing more is saved).
 
     Returns
     -------
@@ -101,8 +113,6 @@ def run_tiles(
     run = TileRun()
     done: dict[int, pd.DataFrame] = {}
     todo = []
-    if run_dir is not None:
-        run_dir.mkdir(parents=True, exist_ok=True)
     for spec in specs:
         cached = None if run_dir is None else _cache_path(run_dir, spec)
         if resume and cached is not None and cached.exists():
@@ -114,7 +124,12 @@ def run_tiles(
     bar = tqdm(total=len(specs), initial=run.reused, unit="tile", desc="tiles", disable=not progress,
                leave=False)
 
+    pending_hook = [before_first]
+
     def _record(spec, df=None, err=None):
+        if pending_hook[0] is not None:
+            hook, pending_hook[0] = pending_hook[0], None
+            hook()
         if err is not None:
             run.failed[spec.key] = f"{type(err).__name__}: {err}"
             log.error("tile %s failed twice: %s", spec.key, err)
@@ -124,7 +139,7 @@ def run_tiles(
                 _save(run_dir, spec, df)
         bar.update(1)
 
-    if todo and scheduler is None and (n_workers <= 1 or len(todo) == 1):
+    if todo and not uses_dask(len(todo), workers, scheduler):
         for spec in todo:
             try:
                 df = _run_one(func, first_arg, spec, extra_args)
@@ -133,11 +148,17 @@ def run_tiles(
                 continue
             _record(spec, df=df)
     elif todo:
-        _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, _record)
+        run.cluster_seconds = _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, _record)
     bar.close()
     run.results = [done[s.index] for s in specs if s.index in done]
     run.seconds = time.perf_counter() - t0
     return run
+
+
+def uses_dask(n_tiles: int, workers: int | None, scheduler: str | None) -> bool:
+    """Whether :func:`run_tiles` sends ``n_tiles`` tiles to Dask (else it runs them in this process)."""
+    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    return scheduler is not None or (n_workers > 1 and n_tiles > 1)
 
 
 def _run_one(func, first_arg, spec, extra_args):
@@ -148,7 +169,9 @@ def _run_one(func, first_arg, spec, extra_args):
         return func(first_arg, spec, *extra_args)
 
 
-def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record):
+def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record) -> float:
+    """Run the tiles on Dask; returns the seconds spent starting and closing the client/cluster."""
+    t0 = time.perf_counter()
     import dask
     from dask.distributed import Client, LocalCluster, as_completed
 
@@ -167,6 +190,7 @@ def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record):
         client = Client(cluster)
     else:
         client = Client(scheduler)
+    setup = time.perf_counter() - t0
     try:
         futures = {}
         for spec in todo:
@@ -176,10 +200,15 @@ def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record):
         for fut in as_completed(futures):
             spec = futures[fut]
             try:
-                record(spec, df=fut.result())
+                df = fut.result()
             except Exception as err:  # noqa: BLE001
                 record(spec, err=err)
+                continue
+            record(spec, df=df)
     finally:
+        t1 = time.perf_counter()
         client.close()
         if cluster is not None:
             cluster.close()
+        teardown = time.perf_counter() - t1
+    return setup + teardown

@@ -9,8 +9,10 @@ statistics on the merged table, and return a :class:`SurveyResult` that
 
 from __future__ import annotations
 
+import json
 import logging
 import math
+import threading
 import time
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -25,7 +27,7 @@ import shapely
 from ..dictionary import CRATER_COLUMNS
 from ..errors import InputError
 from ..ingest import DemInfo, open_dem, plan_tiles, valid_footprint
-from .engine import run_tiles
+from .engine import run_tiles, uses_dask
 from .tile_job import TileParams, measure_tile, survey_tile
 
 __all__ = ["SurveyResult", "survey", "measure"]
@@ -212,19 +214,68 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
 
 
 def _load_scorer(model):
-    """Load the scoring model before any tile runs, so a bad model file fails fast."""
+    """The scoring model and its path (the shipped default when ``model`` is None or "default")."""
     from ..scoring import default_model_path, load_model
 
     model_path = default_model_path() if model is None or model == "default" else Path(model)
     return load_model(model_path), model_path
 
 
+class _ScorerLoader:
+    """Loads the scoring model, in a background thread while Dask workers run the tiles.
+
+    Importing the scorer's libraries and reading the model is a fixed ~2-4 s that the tiles do
+    not need. When the tiles run on Dask workers the main process only waits, so the model
+    loads meanwhile (with the modules the finish stage imports); the engine waits for it
+    before it keeps the first tile result (``before_first``), so a bad model file still stops
+    the survey before anything is written. In-process tiles load it first instead: a thread
+    importing Python modules beside numpy-heavy tile code slows both (each time the tile code
+    takes back the GIL it waits for the importer; measured: 1024^2 tile 1.5 s -> 4-8 s).
+    ``waited`` is the time the caller spent blocked on loading; ``seconds`` the loading itself.
+    """
+
+    def __init__(self, model, *, background: bool):
+        self._model = model
+        self._value = None
+        self._error: BaseException | None = None
+        self.seconds = 0.0
+        self.waited = 0.0
+        self._thread = None
+        if background:
+            self._thread = threading.Thread(target=self._load, name="morpho-scorer-load")
+            self._thread.start()
+        else:
+            self._load()
+            self.waited = self.seconds
+            self.result()  # a bad model file fails here, before any tile runs
+
+    def _load(self):
+        t0 = time.perf_counter()
+        try:
+            self._value = _load_scorer(self._model)
+            from .. import outputs, population, scaling  # noqa: F401 - warm the finish stage's imports
+        except BaseException as err:  # noqa: BLE001 - handed to the caller in result()
+            self._error = err
+        self.seconds = time.perf_counter() - t0
+
+    def result(self):
+        """The loaded ``(model, model_path)``; re-raises the loading error in the caller's thread."""
+        if self._thread is not None and self._thread.is_alive():
+            t0 = time.perf_counter()
+            self._thread.join()
+            self.waited += time.perf_counter() - t0
+        if self._error is not None:
+            raise self._error
+        return self._value
+
+
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params: dict, t_start: float,
-            started: str, failed: dict, command: str, unmeasured=None) -> SurveyResult:
+            started: str, failed: dict, command: str, timing: dict, unmeasured=None) -> SurveyResult:
     from ..outputs import run_provenance
     from ..scaling import add_scaling_columns
     from ..scoring import score_craters, training_domain_notes
 
+    t_finish = time.perf_counter()
     footprint_src = valid_footprint(info)
     fitted, model_path = model
     envelope = None
@@ -255,17 +306,34 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
                                    "method": pd.Series([], dtype=str), "reference": pd.Series([], dtype=str)})
         chains = _chains_frame([], [], info)
     footprint = gpd.GeoDataFrame({"name": ["valid_data"]}, geometry=[footprint_src], crs=_crs_for_output(info))
-    seconds = time.perf_counter() - t_start
     run = run_provenance(
         info.path, command=command, parameters=params, raster_size=(info.height, info.width),
         crs=info.crs, body=info.body, seed=seed, model_path=model_path, start_time=started,
         end_time=datetime.now(UTC).isoformat(timespec="seconds"),
         tiles_failed=[f"{k}: {v}" for k, v in sorted(failed.items())],
         extra={"n_craters": len(craters), "n_tiles": params.get("n_tiles", ""),
-               "seconds": round(seconds, 3), "ground_pixel_m": list(info.ground_pixel_m),
+               "ground_pixel_m": list(info.ground_pixel_m),
                "warped_to_local_stereographic": info.needs_warp},
     )
+    now = time.perf_counter()
+    timing["finish"] = now - t_finish
+    # Wall time of the stages (seconds; differs run to run, unlike every other value).
+    caveats = run.pop("caveats")  # stays the last key
+    run["seconds"] = f"{now - t_start:.3f}"
+    run["timing_s"] = json.dumps({k: round(v, 3) for k, v in timing.items()})
+    run["caveats"] = caveats
+    log.info("survey stages (s): %s", ", ".join(f"{k} {v:.2f}" for k, v in timing.items()))
     return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured, envelope)
+
+
+def _run_timing(run, loader: _ScorerLoader, waited_in_tiles: float) -> dict:
+    """Stage times around the tiles: fixed costs (cluster, waiting for the model) apart from tile work."""
+    return {
+        "model_load": loader.seconds,  # in the background; only ``model_wait`` delayed the survey
+        "model_wait": loader.waited,
+        "cluster": run.cluster_seconds,
+        "tiles": run.seconds - run.cluster_seconds - waited_in_tiles,
+    }
 
 
 def _prepare(path, *, body, band, pixel_size, z_scale, z_offset, min_diameter_px):
@@ -349,14 +417,18 @@ def survey(
     started = datetime.now(UTC).isoformat(timespec="seconds")
     info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
                     z_offset=z_offset, min_diameter_px=min_diameter_px)
-    scorer = _load_scorer(model)
+    timing = {"open": time.perf_counter() - t_start}
     specs, max_d = _tiling(info, tile_size, max_diameter_px)
+    loader = _ScorerLoader(model, background=uses_dask(len(specs), workers, scheduler))
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
+    waited_before = loader.waited
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
-                    run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress)
+                    run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
+                    before_first=loader.result)
     log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
+    t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(df):
@@ -372,8 +444,11 @@ def survey(
         "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
         "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
     }
+    merge = time.perf_counter() - t_merge
+    scorer = loader.result()
+    timing.update(_run_timing(run, loader, waited_in_tiles), merge=merge)
     return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
-                   failed=run.failed, command="survey")
+                   failed=run.failed, command="survey", timing=timing)
 
 
 def measure(
@@ -418,7 +493,7 @@ def measure(
     started = datetime.now(UTC).isoformat(timespec="seconds")
     info = _prepare(path, body=body, band=band, pixel_size=pixel_size, z_scale=z_scale,
                     z_offset=z_offset, min_diameter_px=4)
-    scorer = _load_scorer(model)
+    timing = {"open": time.perf_counter() - t_start}
     need = {"crater_id", "x", "y", "diameter_m"}
     if not need <= set(craters.columns):
         raise InputError(f"crater table lacks columns {sorted(need - set(craters.columns))}.",
@@ -427,6 +502,7 @@ def measure(
     single = max(info.height, info.width) <= tile_size
     overlap = 0 if single else int(math.ceil(1.25 * max_d_px))
     specs = plan_tiles(info, max(info.height, info.width) if single else tile_size, overlap)
+    loader = _ScorerLoader(model, background=uses_dask(len(specs), workers, scheduler))
     # Craters whose centre is outside the raster are reported, not silently dropped.
     inv = ~info.transform
     col = inv.c + inv.a * craters["x"].to_numpy(float) + inv.b * craters["y"].to_numpy(float)
@@ -435,8 +511,10 @@ def measure(
     unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
                   for c in craters.loc[~inside, "crater_id"]]
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
+    waited_before = loader.waited
     run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                    workers=workers, scheduler=scheduler, progress=progress)
+                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.result)
+    t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(df) and "measure_status" in df:
@@ -452,6 +530,9 @@ def measure(
         "n_boot": n_boot, "workers": workers, "scheduler": scheduler, "n_listed": len(craters),
         "bad_rows": bad_rows or {}, "unmeasured": unmeasured,
     }
+    merge = time.perf_counter() - t_merge
+    scorer = loader.result()
+    timing.update(_run_timing(run, loader, waited_in_tiles), merge=merge)
     return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
-                   failed=run.failed, command="measure", unmeasured=pd.DataFrame(unmeasured,
-                   columns=["crater_id", "reason"]))
+                   failed=run.failed, command="measure", timing=timing,
+                   unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]))
