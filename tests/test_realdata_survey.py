@@ -1,7 +1,10 @@
 """Whole surveys of the two real NASA DEMs in ../shared/data (skipped when absent).
 
-Reference diameters are the IAU Gazetteer of Planetary Nomenclature values as recalled
-(from memory; check against the gazetteer before tightening tolerances).
+Lunar reference centres and rim diameters: IAU Gazetteer of Planetary Nomenclature (IAU WGPSN /
+USGS), current entries (the LOLA-era revision, two-decimal diameters), as quoted by Wikipedia
+infoboxes that cite the gazetteer (de, ru, en editions), found with the search tool in 2026; the
+gazetteer site itself was not read. Older gazetteer / NASA RP-1097 (Andersson & Whitaker 1982)
+values differ by up to 10 % for the basins (Hertzsprung 591 km, Korolev 437 km, Mendeleev 313 km).
 """
 
 from __future__ import annotations
@@ -11,10 +14,13 @@ import pytest
 
 from morpho.pipeline import survey
 
-# name, latitude, east longitude (-180..180), rim diameter km -- IAU gazetteer, from memory
-LUNAR_NAMED = [("Gagarin", -20.2, 149.2, 262), ("Korolev", -4.0, -157.4, 437), ("Hertzsprung", 2.6, -128.7, 570),
-               ("Mendeleev", 5.7, 140.9, 313), ("Tsiolkovskiy", -20.4, 129.1, 185), ("Daedalus", -5.9, 179.4, 93),
-               ("Keeler", -10.2, 161.9, 160), ("Heaviside", -10.4, 167.1, 165)]
+# name, latitude, east longitude (-180..180), rim diameter km -- IAU gazetteer (see module docstring);
+# Daedalus: diameter from the gazetteer (93.61 km, pt.wikipedia), centre 5.9 S 179.4 E from the
+# older entry (en.wikipedia).
+LUNAR_NAMED = [("Gagarin", -20.02, 149.17, 267.32), ("Korolev", -4.14, -157.22, 423.41),
+               ("Hertzsprung", 0.71, -129.22, 536.37), ("Mendeleev", 5.38, 141.17, 325.13),
+               ("Tsiolkovskiy", -20.38, 128.97, 184.39), ("Daedalus", -5.9, 179.4, 93.61),
+               ("Keeler", -9.78, 161.78, 158.1), ("Heaviside", -10.44, 166.77, 164.5)]
 R_MOON_KM = 1737.4
 
 
@@ -48,7 +54,11 @@ def test_lunar_named_craters_within_15_percent(lunar):
         got = lunar.loc[near, "diameter_m"] / 1000.0
         errors[name] = float((got / d_km - 1).abs().min())
     within = sum(e <= 0.15 for e in errors.values())
-    assert within >= 7, errors  # measured: 7 of 8 (Mendeleev +20 %)
+    # Measured: 7 of 8. Hertzsprung, a two-ring basin, measures +17 % (627 km): its highest
+    # ring on LDEM_4 lies at ~1.1 x the gazetteer radius. Rim crests here are the highest
+    # points of the rim, which on these degraded complex craters sit 5-14 % outside the
+    # gazetteer rim (Tsiolkovskiy +14.6 %).
+    assert within >= 7, errors
 
 
 @pytest.mark.realdata

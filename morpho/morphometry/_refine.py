@@ -13,7 +13,8 @@ from ._geometry import fit_circle, interp_last
 from ._validate import as_centres, as_dem, as_spacing
 from .profiles import sample_polar, sample_radial_profiles
 
-__all__ = ["Crest", "find_crest", "sharpen_crest", "refine_craters", "detrended_profiles",
+__all__ = ["Crest", "find_crest", "find_inner_crest", "inner_summit_index",
+           "sharpen_crest", "refine_craters", "detrended_profiles",
            "n_radii_for", "R_MAX"]
 
 #: Outer profile radius (crater radii) and bounds on radial samples per profile: a batch
@@ -41,6 +42,29 @@ class Crest:
     z: np.ndarray
 
 
+def _subsample_peak(sub, k, r_norm, sel):
+    """Crest at window index ``k`` refined by a parabola through its neighbours -> Crest.
+
+    A crest on the window's edge, or next to nodata, is rejected (NaN).
+    """
+    filled = np.where(np.isfinite(sub), sub, -np.inf)
+    top = np.take_along_axis(filled, k[..., None], -1)[..., 0]
+    inside = (k > 0) & (k < sel.size - 1)
+    kc = np.clip(k, 1, sel.size - 2)
+    zm = np.take_along_axis(sub, (kc - 1)[..., None], -1)[..., 0]
+    z0 = np.take_along_axis(sub, kc[..., None], -1)[..., 0]
+    zp = np.take_along_axis(sub, (kc + 1)[..., None], -1)[..., 0]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        den = zm - 2.0 * z0 + zp
+        off = np.where(den < 0, 0.5 * (zm - zp) / den, 0.0)
+    off = np.clip(off, -0.5, 0.5)
+    dr = r_norm[sel[1]] - r_norm[sel[0]]  # the window part of the grid must be uniform
+    r_c = r_norm[sel[0]] + (kc + off) * dr
+    z_c = z0 - 0.25 * (zm - zp) * off
+    good = inside & np.isfinite(top) & np.isfinite(zm) & np.isfinite(zp)
+    return Crest(np.where(good, r_c, np.nan), np.where(good, z_c, np.nan))
+
+
 def find_crest(zd, r_norm, window=(0.6, 1.6)):
     """Highest detrended elevation on each azimuth inside ``window`` (crater radii).
 
@@ -62,23 +86,90 @@ def find_crest(zd, r_norm, window=(0.6, 1.6)):
     """
     sel = np.flatnonzero((r_norm >= window[0]) & (r_norm <= window[1]))
     sub = zd[:, :, sel]
-    filled = np.where(np.isfinite(sub), sub, -np.inf)
-    k = np.argmax(filled, axis=-1)
-    top = np.take_along_axis(filled, k[..., None], -1)[..., 0]
-    inside = (k > 0) & (k < sel.size - 1)
-    kc = np.clip(k, 1, sel.size - 2)
-    zm = np.take_along_axis(sub, (kc - 1)[..., None], -1)[..., 0]
-    z0 = np.take_along_axis(sub, kc[..., None], -1)[..., 0]
-    zp = np.take_along_axis(sub, (kc + 1)[..., None], -1)[..., 0]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        den = zm - 2.0 * z0 + zp
-        off = np.where(den < 0, 0.5 * (zm - zp) / den, 0.0)
-    off = np.clip(off, -0.5, 0.5)
-    dr = r_norm[sel[1]] - r_norm[sel[0]]  # the window part of the grid must be uniform
-    r_c = r_norm[sel[0]] + (kc + off) * dr
-    z_c = z0 - 0.25 * (zm - zp) * off
-    good = inside & np.isfinite(top) & np.isfinite(zm) & np.isfinite(zp)
-    return Crest(np.where(good, r_c, np.nan), np.where(good, z_c, np.nan))
+    k = np.argmax(np.where(np.isfinite(sub), sub, -np.inf), axis=-1)
+    return _subsample_peak(sub, k, r_norm, sel)
+
+
+#: Inner-crest rule of the refinement (:func:`find_inner_crest`): a local maximum inside the
+#: highest point of the window is the rim crest when it reaches this share of the window's
+#: relief (highest point above the low inside it) ...
+INNER_CREST_SHARE = 0.85
+#: ... and the profile dips by at least this share of that relief between it and the highest
+#: point (a separate summit, not a noise ripple on the upper wall). Choices made here, checked
+#: on synthetic scenes (benchmarks/bench_detection.py) and the lunar named craters
+#: (tests/test_realdata_survey.py).
+INNER_CREST_DIP = 0.05
+
+
+def inner_summit_index(sub, share=INNER_CREST_SHARE, dip=INNER_CREST_DIP):
+    """Index along the last axis of the innermost prominent summit (see :func:`find_inner_crest`).
+
+    Parameters
+    ----------
+    sub : ndarray, shape (..., m)
+        Profiles over the search window, NaN for no data.
+    share, dip : float
+        Height and separation of an inner summit, as shares of the window's relief.
+
+    Returns
+    -------
+    ndarray of int, shape (...)
+        The highest point's index where no inner summit qualifies.
+    """
+    fin = np.isfinite(sub)
+    top_k = np.argmax(np.where(fin, sub, -np.inf), axis=-1)
+    idx = np.arange(sub.shape[-1])
+    upto = idx <= top_k[..., None]
+    top = np.take_along_axis(np.where(fin, sub, -np.inf), top_k[..., None], -1)[..., 0]
+    low = np.min(np.where(fin & upto, sub, np.inf), axis=-1)
+    relief = top - low
+    # Lowest point between each sample (exclusive) and the highest point: nodata is no dip.
+    col = np.where(fin & upto, sub, np.inf)
+    col = np.minimum.accumulate(col[..., ::-1], axis=-1)[..., ::-1]
+    col = np.concatenate([col[..., 1:], np.full(col.shape[:-1] + (1,), np.inf)], axis=-1)
+    prev = np.concatenate([np.full(sub.shape[:-1] + (1,), np.nan), sub[..., :-1]], axis=-1)
+    nxt = np.concatenate([sub[..., 1:], np.full(sub.shape[:-1] + (1,), np.nan)], axis=-1)
+    with np.errstate(invalid="ignore"):
+        summit = fin & (sub >= prev) & (sub > nxt) & (idx < top_k[..., None])
+        summit &= sub - low[..., None] >= share * relief[..., None]
+        summit &= sub - col >= dip * relief[..., None]
+    return np.where(summit.any(-1), np.argmax(summit, axis=-1), top_k)
+
+
+def find_inner_crest(zd, r_norm, window=(0.6, 1.6), share=INNER_CREST_SHARE, dip=INNER_CREST_DIP):
+    """Innermost prominent summit on each azimuth inside ``window`` (crater radii).
+
+    Going outward from the crater floor, the rim crest is the first summit that is nearly as
+    high as the highest point of the window: a local maximum reaching ``share`` of the relief
+    (window maximum above the lowest point inside it) that is separated from the maximum by a
+    dip of at least ``dip`` of the relief. Where there is no such summit this is the highest
+    point, as in :func:`find_crest`. On a degraded crater in rough terrain, the highest point
+    within 1.6 radii is often outer terrain (a neighbour's rim, an outer ring, the rim flank
+    of an older basin) standing a little above the rim; taking it made the circle fit creep
+    outwards (lunar complex craters of 180-540 km measured 15-20 % large on LOLA LDEM_4).
+    A fresh crater's rim, a single summit, is unaffected. This is the topographic-prominence
+    idea of separating summits by the depth of the col between them (common practice in
+    geomorphometry).
+
+    Parameters
+    ----------
+    zd : ndarray, shape (n, n_az, n_r)
+        Detrended profiles.
+    r_norm : ndarray, shape (n_r,)
+        Uniform radii (crater radii) over the window.
+    window : (float, float)
+        Search range in crater radii.
+    share, dip : float
+        Height and separation of an inner summit, as shares of the relief.
+
+    Returns
+    -------
+    Crest
+    """
+    sel = np.flatnonzero((r_norm >= window[0]) & (r_norm <= window[1]))
+    sub = zd[:, :, sel]
+    k = inner_summit_index(sub, share, dip)
+    return _subsample_peak(sub, k, r_norm, sel)
 
 
 def _quadratic(t, z):
@@ -196,9 +287,11 @@ def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter
                    window=(0.6, 1.6), chunk=2000):
     """Refine crater centres and rim-crest radii by circle fits to the rim crest.
 
-    On each of ``n_azimuths`` detrended radial profiles the rim crest is the highest point
-    within ``window`` (crater radii) of the current centre; a Kasa (1976) circle fitted to
-    those crest points gives the new centre and radius. Repeated ``n_iter`` times. A
+    On each of ``n_azimuths`` detrended radial profiles the rim crest is the innermost
+    summit within ``window`` (crater radii) of the current centre that is nearly as high as
+    the window's highest point (:func:`find_inner_crest`; the highest point itself on a
+    single-crested rim); a Kasa (1976) circle fitted to those crest points gives the new
+    centre and radius. Repeated ``n_iter`` times. A
     crater whose fit fails, or moves by more than its radius, keeps its last good values.
 
     Parameters
@@ -273,7 +366,7 @@ def _refine_chunk(z, rows, cols, rad, n_azimuths, n_iter, window):
             break
         zp = sample_polar(z, rows, cols, rad, az, grid, order=ORDER)
         zd, _ = detrend_profiles(zp, grid, az, rad)
-        crest = find_crest(zd, grid, window)
+        crest = find_inner_crest(zd, grid, window)
         crest = sharpen_crest(zd, grid, crest, rad)
         coverage = np.isfinite(crest.r_norm).mean(axis=1)
         has_data = np.isfinite(zp).any(axis=(1, 2))
