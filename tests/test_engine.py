@@ -121,3 +121,17 @@ def test_before_first_failure_on_a_local_cluster_closes_it_and_raises(tmp_path):
     with pytest.raises(ValueError, match="model failed"):
         run_tiles(toy_tile, 7, SPECS, workers=2, run_dir=tmp_path / "run", before_first=hook, progress=False)
     assert not (tmp_path / "run").exists()
+
+
+def test_warm_modules_are_imported_before_any_tile_runs(tmp_path):
+    calls = []
+
+    def tile(seed, spec):
+        calls.append(spec.index)
+        return toy_tile(seed, spec)
+
+    with pytest.raises(ModuleNotFoundError):
+        run_tiles(tile, 7, SPECS, warm_modules=("morpho.no_such_module",), progress=False)
+    assert calls == []
+    run = run_tiles(tile, 7, SPECS, warm_modules=("morpho.shapes",), progress=False)
+    assert len(run.results) == len(SPECS) and run.warmup_seconds >= 0

@@ -10,7 +10,7 @@ import click
 #: stages of the survey's own work (grow with the DEM's area), in the order they run
 AREA_STAGES = ("open", "tiles", "merge", "finish", "write")
 #: fixed costs of one command, whatever the DEM's size
-FIXED_STAGES = ("start-up", "model wait", "cluster")
+FIXED_STAGES = ("start-up", "model wait", "cluster", "warm-up")
 
 
 def seconds_since_process_start() -> float | None:
@@ -35,7 +35,8 @@ def stage_seconds(result, *, startup: float | None = None, write: float | None =
 
     Keys: ``start-up`` (Python, imports, option parsing), ``model wait`` (time the survey
     waited for its scoring model, which loads beside the tiles), ``cluster`` (starting and
-    closing Dask workers), then the area-dependent stages of :data:`AREA_STAGES`.
+    closing Dask workers), ``warm-up`` (importing the tile code in this process), then the
+    area-dependent stages of :data:`AREA_STAGES`.
     """
     run = result.run if isinstance(result.run, dict) else {}
     try:
@@ -45,7 +46,7 @@ def stage_seconds(result, *, startup: float | None = None, write: float | None =
     out = {}
     if startup is not None:
         out["start-up"] = float(startup)
-    for key, name in (("model_wait", "model wait"), ("cluster", "cluster"), ("open", "open"),
+    for key, name in (("model_wait", "model wait"), ("cluster", "cluster"), ("warmup", "warm-up"), ("open", "open"),
                       ("tiles", "tiles"), ("merge", "merge"), ("finish", "finish")):
         if key in timing:
             out[name] = float(timing[key])

@@ -36,6 +36,8 @@ log = logging.getLogger(__name__)
 
 #: Default core size of a tile in source pixels.
 DEFAULT_TILE_SIZE = 2048
+#: Modules the tile jobs import lazily: imported before the first tile (a fixed cost, not tile work).
+TILE_MODULES = ("morpho.detection", "morpho.morphometry")
 #: Largest crater searched by default on multi-tile DEMs (pixels); single-tile DEMs search up to the tile.
 DEFAULT_MAX_DIAMETER_PX = 256
 
@@ -332,7 +334,8 @@ def _run_timing(run, loader: _ScorerLoader, waited_in_tiles: float) -> dict:
         "model_load": loader.seconds,  # in the background; only ``model_wait`` delayed the survey
         "model_wait": loader.waited,
         "cluster": run.cluster_seconds,
-        "tiles": run.seconds - run.cluster_seconds - waited_in_tiles,
+        "warmup": run.warmup_seconds,
+        "tiles": run.seconds - run.cluster_seconds - run.warmup_seconds - waited_in_tiles,
     }
 
 
@@ -426,7 +429,7 @@ def survey(
     waited_before = loader.waited
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
                     run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
-                    before_first=loader.result)
+                    before_first=loader.result, warm_modules=TILE_MODULES)
     log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
     t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
@@ -513,7 +516,8 @@ def measure(
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
     waited_before = loader.waited
     run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.result)
+                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.result,
+                    warm_modules=TILE_MODULES)
     t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
