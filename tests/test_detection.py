@@ -244,3 +244,26 @@ def test_parallel_suppression_matches_greedy_on_separate_clusters():
     g2 = set(suppress_duplicates(rows2, cols2, rad2, rank2).tolist())
     f2 = set(suppress_duplicates(rows2, cols2, rad2, rank2, greedy=False).tolist())
     assert f2 <= g2
+
+
+@pytest.mark.parametrize("radius", [12.0, 30.0])
+def test_rim_not_moved_to_a_higher_outer_ridge(radius):
+    # A degraded crater inside older, higher terrain: a concentric ridge at 1.4 R stands 10 %
+    # above the rim crest (a basin ring, a neighbour's rim). The rim crest is the first summit
+    # outward from the floor (analytic shape; rim = crest of the cavity wall, Pike 1977, from
+    # memory); with the highest point as crest, detection and refinement returned ~1.4 R.
+    from morpho.morphometry import refine_craters
+
+    n = int(5 * radius) + 10
+    c = n / 2.0
+    z = bowl((n, n), c, c, radius, shape="paraboloid")
+    rho = np.hypot(*np.mgrid[0:n, 0:n] - c) / radius
+    plain = np.median(z[:5, :5])
+    rim, flank = z.max() - plain, np.interp(1.4, rho[int(c), int(c):], z[int(c), int(c):]) - plain
+    z = z + (1.1 * rim - flank) * np.exp(-0.5 * ((rho - 1.4) / 0.06) ** 2)  # ridge top 1.1 x rim
+    det = detect_craters(z, SPACING, min_diameter_px=8.0)
+    got, off = nearest(det, c, c)
+    assert off < 0.1 * radius
+    assert got.radius_px == pytest.approx(radius, rel=0.08)
+    ref = refine_craters(z, SPACING, [got.row], [got.col], [got.radius_px])
+    assert ref.loc[0, "radius_px"] == pytest.approx(radius, rel=0.04)

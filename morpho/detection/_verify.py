@@ -3,8 +3,10 @@
 Each candidate is sampled on a polar grid (:func:`morpho.morphometry.profiles.sample_radial_profiles`,
 never across nodata). A plane fitted to the surroundings (1.3-2 radii, with one round of outlier
 rejection) removes the regional slope. On every azimuth the rim crest is the highest point between
-0.5 and 1.5 radii; a least-squares circle through the crests (Kasa 1976) refines the centre and the
-rim-crest radius. The work is a cascade so that most candidates cost little: a coarse pass
+0.5 and 1.5 radii in the coarse screening pass, and in the refinement and rating passes the innermost
+summit there that is nearly as high (:func:`morpho.morphometry._refine.inner_summit_index`, the rule
+of the morphometry refinement that follows); a least-squares circle through the crests (Kasa 1976)
+refines the centre and the rim-crest radius. The work is a cascade so that most candidates cost little: a coarse pass
 (16 azimuths) screens on depth/diameter and depth/roughness and refits; candidates that converged
 on the same rim are merged; one refinement pass and a final rating follow at full resolution.
 The confidence is the product of: the share of azimuths with a crest above the floor, the
@@ -27,6 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from morpho.morphometry._geometry import fit_circle
+from morpho.morphometry._refine import inner_summit_index
 from morpho.morphometry.profiles import sample_radial_profiles
 
 from ._merge import suppress_duplicates
@@ -105,15 +108,23 @@ def _detrend(prof) -> tuple[np.ndarray, np.ndarray]:
     return zz - (coef @ basis.T).reshape(n, a, m), sigma
 
 
-def _crests(d, r_norm):
-    """Per-azimuth rim crest: normalised radius, height, crest-found and window-valid flags."""
+def _crests(d, r_norm, inner_summit=True):
+    """Per-azimuth rim crest: normalised radius, height, crest-found and window-valid flags.
+
+    ``inner_summit``: the innermost summit nearly as high as the window's top
+    (:func:`~morpho.morphometry._refine.inner_summit_index`; on a degraded crater in rough terrain
+    the top is often outer terrain), else the highest point.
+    """
     i0, i1 = np.searchsorted(r_norm, _WIN[0]), np.searchsorted(r_norm, _WIN[1], side="right")
     win = d[:, :, i0:i1]
     # Coverage: the rim band (0.8 .. 1.2 radii) on valid data (dictionary: rim_coverage). Nodata
     # on the inner wall or floor does not hide the rim, so it does not count against coverage.
     c0, c1 = np.searchsorted(r_norm, _COVER_MIN), np.searchsorted(r_norm, _COVER_MAX, side="right")
     finite = np.isfinite(d[:, :, c0:c1]).all(axis=2)
-    idx = np.argmax(np.where(np.isfinite(win), win, -np.inf), axis=2)
+    if inner_summit:
+        idx = inner_summit_index(win)
+    else:
+        idx = np.argmax(np.where(np.isfinite(win), win, -np.inf), axis=2)
     height = np.take_along_axis(win, idx[..., None], axis=2)[..., 0]
     # Parabolic sub-sample peak position where both neighbours exist.
     inner = (idx > 0) & (idx < win.shape[2] - 1)
@@ -129,12 +140,12 @@ def _crests(d, r_norm):
     return rho, height, found & finite, finite
 
 
-def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII):
+def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII, inner_summit=True):
     """One round of sampling: crest geometry and relief for every candidate."""
     prof = sample_radial_profiles(z, rows, cols, radius, n_azimuths=n_az, n_radii=n_radii,
                                   r_max_factor=_R_MAX)
     d, rough = _detrend(prof)
-    rho, height, found, ok = _crests(d, prof.r_norm)
+    rho, height, found, ok = _crests(d, prof.r_norm, inner_summit)
     # Floor = lowest level of the azimuth-averaged interior profile, not the centre: complex
     # craters carry central peaks or mounds above their floor.
     inner = prof.r_norm <= _FLOOR_MAX
@@ -195,7 +206,8 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     # Crests far from the fitted radius mean the refinement did not converge on this rim.
     t_fit = 1.0 - np.clip((np.abs(np.nan_to_num(med, nan=0.0) - 1.0) - 0.1) / 0.15, 0.0, 1.0)
     conf = t_round * t_depth * t_snr * share * t_fit
-    terms = {"spread": spread, "depth_ratio": ratio, "snr": snr, "share": share, "fit": t_fit}
+    terms = {"spread": spread, "depth_ratio": ratio, "snr": snr, "share": share, "fit": t_fit,
+             "partial": t_round * t_depth * t_snr * share}
     return np.clip(conf, 0.0, 1.0), coverage, depth, terms
 
 
@@ -266,7 +278,9 @@ def _screen(z, rows, cols, rad, spacing_m, min_depth_ratio):
     if rows.size == 0:
         e = np.empty(0)
         return e, e, e, e
-    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, 16, 33)
+    # The highest point as crest: the screen only drops what cannot reach a useful confidence,
+    # and the maximum relief errs on the side of keeping a candidate.
+    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, 16, 33, inner_summit=False)
     _, _, _, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
     # Screening on what an off-centre first guess cannot spoil: depth/diameter and
     # depth/roughness, with a loose roundness bound (a 20 % centre offset spreads crest radii by
@@ -287,11 +301,13 @@ def _refine_and_rate(z, rows, cols, rad, spacing_m, min_depth_ratio, n_azimuths)
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})
     az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
-    conf, *_ = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
+    conf, *_, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
     rows, cols, rad = _refit(rows, cols, rad, az, rho, good, n_azimuths)
     # A rim that rates below 0.15 from a centre within a few % of its own would not reach a
-    # useful confidence after one more step: stop spending profiles on it.
-    live = conf >= 0.15
+    # useful confidence after one more step: stop spending profiles on it. The agreement of
+    # the crests with the old radius is left out: the refit just made (e.g. from an outer
+    # ridge the screen took for the rim in to the inner summit) is what restores it.
+    live = terms["partial"] >= 0.15
     rows, cols, rad = rows[live], cols[live], rad[live]
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})

@@ -117,22 +117,23 @@ def inner_summit_index(sub, share=INNER_CREST_SHARE, dip=INNER_CREST_DIP):
         The highest point's index where no inner summit qualifies.
     """
     fin = np.isfinite(sub)
-    top_k = np.argmax(np.where(fin, sub, -np.inf), axis=-1)
+    filled = np.where(fin, sub, -np.inf)
+    top_k = np.argmax(filled, axis=-1)
+    top = np.take_along_axis(filled, top_k[..., None], -1)[..., 0]
     idx = np.arange(sub.shape[-1])
-    upto = idx <= top_k[..., None]
-    top = np.take_along_axis(np.where(fin, sub, -np.inf), top_k[..., None], -1)[..., 0]
-    low = np.min(np.where(fin & upto, sub, np.inf), axis=-1)
-    relief = top - low
-    # Lowest point between each sample (exclusive) and the highest point: nodata is no dip.
-    col = np.where(fin & upto, sub, np.inf)
+    upto = fin & (idx <= top_k[..., None])
+    col = np.where(upto, sub, np.inf)
+    # Lowest point from each sample to the highest point (nodata is no dip) ...
     col = np.minimum.accumulate(col[..., ::-1], axis=-1)[..., ::-1]
-    col = np.concatenate([col[..., 1:], np.full(col.shape[:-1] + (1,), np.inf)], axis=-1)
-    prev = np.concatenate([np.full(sub.shape[:-1] + (1,), np.nan), sub[..., :-1]], axis=-1)
-    nxt = np.concatenate([sub[..., 1:], np.full(sub.shape[:-1] + (1,), np.nan)], axis=-1)
+    low = col[..., 0]
+    need = (top - low)[..., None]
+    # ... and a summit's col is the lowest point after it: interior samples only (an edge sample
+    # is no summit).
+    mid = sub[..., 1:-1]
     with np.errstate(invalid="ignore"):
-        summit = fin & (sub >= prev) & (sub > nxt) & (idx < top_k[..., None])
-        summit &= sub - low[..., None] >= share * relief[..., None]
-        summit &= sub - col >= dip * relief[..., None]
+        summit = (mid >= sub[..., :-2]) & (mid > sub[..., 2:]) & (idx[1:-1] < top_k[..., None])
+        summit &= (mid - low[..., None] >= share * need) & (mid - col[..., 2:] >= dip * need)
+    summit = np.concatenate([np.zeros(summit.shape[:-1] + (1,), bool), summit], axis=-1)
     return np.where(summit.any(-1), np.argmax(summit, axis=-1), top_k)
 
 
