@@ -20,7 +20,8 @@ from morpho.pipeline import survey
 LUNAR_NAMED = [("Gagarin", -20.02, 149.17, 267.32), ("Korolev", -4.14, -157.22, 423.41),
                ("Hertzsprung", 0.71, -129.22, 536.37), ("Mendeleev", 5.38, 141.17, 325.13),
                ("Tsiolkovskiy", -20.38, 128.97, 184.39), ("Daedalus", -5.9, 179.4, 93.61),
-               ("Keeler", -9.78, 161.78, 158.1), ("Heaviside", -10.44, 166.77, 164.5)]
+               ("Keeler", -9.78, 161.78, 158.1), ("Heaviside", -10.44, 166.77, 164.5),
+               ("Fermi", -19.61, 123.24, 241.41)]
 R_MOON_KM = 1737.4
 
 
@@ -48,17 +49,19 @@ def test_lunar_highlands_yield_hundreds_of_craters(lunar):
 def test_lunar_named_craters_within_15_percent(lunar):
     errors = {}
     for name, lat, lon, d_km in LUNAR_NAMED:
-        dist_km = np.hypot((lunar["lon"] - lon) * np.cos(np.radians(lat)), lunar["lat"] - lat) * np.radians(1) * R_MOON_KM
+        dlon = (lunar["lon"] - lon + 180.0) % 360.0 - 180.0
+        dist_km = np.hypot(dlon * np.cos(np.radians(lat)), lunar["lat"] - lat) * np.radians(1) * R_MOON_KM
         near = dist_km < 0.3 * d_km
-        assert near.any(), f"{name} not found"
         got = lunar.loc[near, "diameter_m"] / 1000.0
-        errors[name] = float((got / d_km - 1).abs().min())
-    within = sum(e <= 0.15 for e in errors.values())
-    # Measured: 7 of 8. Hertzsprung, a two-ring basin, measures +17 % (627 km): its highest
-    # ring on LDEM_4 lies at ~1.1 x the gazetteer radius. Rim crests here are the highest
-    # points of the rim, which on these degraded complex craters sit 5-14 % outside the
-    # gazetteer rim (Tsiolkovskiy +14.6 %).
-    assert within >= 7, errors
+        errors[name] = float((got / d_km - 1).abs().min()) if near.any() else np.inf
+    within = sorted(name for name, e in errors.items() if e <= 0.15)
+    # Measured: 7 of 9 (rim-crest diameters +4 to +14 % of the gazetteer's). Not within:
+    # Hertzsprung, a two-ring basin, +17 % (627 km): its highest ring on LDEM_4 lies at ~1.1 x
+    # the gazetteer radius (the older gazetteer value, 591 km, would be +6 %). Fermi is not
+    # detected: its south and east rim are obliterated (Tsiolkovskiy overlaps it) and its
+    # best candidate rates 0.36 < 0.4, held down by depth / surrounding roughness (2.9).
+    assert len(within) >= 7, errors
+    assert {"Gagarin", "Mendeleev", "Tsiolkovskiy", "Daedalus", "Keeler", "Heaviside"} <= set(within), errors
 
 
 @pytest.mark.realdata
