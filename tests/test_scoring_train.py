@@ -56,9 +56,10 @@ def test_training_rows_are_measured_not_copied():
     truth_dd = df["truth_depth_diameter"] if "truth_depth_diameter" in df else None
     if truth_dd is not None:
         assert not np.any(df["d_over_D"].to_numpy() == truth_dd.to_numpy())
-    # Same seed, same table (common practice: reproducible from a seed).
+    # Same seed, same table, whether built in one process or two (common practice:
+    # reproducible from a seed; the jobs carry their own seeds).
     again = build_training_set(n_per_class=6, seed=3, pixels_per_diameter_bands=((20.0, 40.0),),
-                               surface_share=0.0)
+                               surface_share=0.0, n_jobs=2)
     assert again.equals(df)
 
 

@@ -19,11 +19,14 @@ __all__ = ["command"]
               help="Model to write, e.g. models/NAME (NAME.skops plus NAME.card.json/.card.md beside it).")
 @click.option("--seed", default=6, show_default=True, type=click.IntRange(min=0),
               help="Root seed: same files + seed + sizes = same model.")
-@click.option("--n-per-class", default=1800, show_default=True, type=click.IntRange(min=30),
+@click.option("--n-per-class", default=3600, show_default=True, type=click.IntRange(min=30),
               help="Impact training craters; the spot families share the same number.")
+@click.option("--jobs", default=None, type=click.IntRange(min=1),
+              help="Processes rendering and measuring training craters [default: all cores]; "
+                   "the model does not depend on it.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing model and card.")
 @click.pass_context
-def command(ctx, hypotheses_dir, output, seed, n_per_class, overwrite):
+def command(ctx, hypotheses_dir, output, seed, n_per_class, jobs, overwrite):
     """Render training craters from the hypothesis files, measure them like real craters,
     fit the impact-vs-electrode-spot scorer and write it with its model card.
 
@@ -36,7 +39,7 @@ def command(ctx, hypotheses_dir, output, seed, n_per_class, overwrite):
         logging.getLogger("morpho.synth").setLevel(logging.WARNING)
 
     path, card = rebuild_model(hypotheses_dir, output, seed=seed, n_per_class=n_per_class,
-                               overwrite=overwrite)
+                               overwrite=overwrite, n_jobs=jobs)
     click.echo(f"wrote {path} (trained in {card['training_time_s']:.0f} s)")
     for row in card["held_out_metrics"]:
         click.echo(f"  held-out {row['band']:>9}: n={row['n']:5d} accuracy={row['accuracy']:.3f} "

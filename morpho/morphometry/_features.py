@@ -21,10 +21,11 @@ from ._geometry import (
     harmonic_amplitudes,
     interp_last,
     nanquantile_last,
+    wmad_relative,
     wquantile,
 )
 
-__all__ = ["azimuth_features", "profile_features", "crest_shape", "RIM_QUANTILE", "FLOOR_LEVEL"]
+__all__ = ["azimuth_features", "profile_features", "crest_shape", "bowl_offset", "RIM_QUANTILE", "FLOOR_LEVEL"]
 
 #: Rim elevation = this quantile of per-azimuth crest elevations (Breton et al. 2019 use the
 #: 60th percentile of rim elevations).
@@ -98,12 +99,60 @@ def azimuth_features(theta, crest_r_m, crest_z, curv, angle, w=None):
             "outline_irregularity": np.sqrt(power),
             "polygonality_index": (rel[..., 1:] ** 2).max(-1) / power,
             "rim_height_asymmetry": zamp[..., 1] / zamp[..., 0],
+            "rim_height_variation": wmad_relative(crest_z, w),
+            "outline_spread": wmad_relative(crest_r_m, w),
             "rim_curvature_norm": wquantile(curv, 0.5, w),
             "rim_crest_angle_deg": wquantile(angle, 0.5, w),
         }
     for k in range(2, 9):
         out[f"rim_harmonic_{k}"] = rel[..., k - 2]
     return out
+
+
+#: Bowl offset: centroid of the cavity below half its depth, within this radius (crater radii).
+BOWL_ZONE = 0.8
+
+
+def bowl_offset(zd, r_norm, theta, w=None):
+    """Offset of the deep part of the cavity from the rim-crest centre, in crater radii.
+
+    The centroid (area-weighted, r dr dtheta) of the cavity below half its depth, inside
+    0.8 R; depth is measured from the plain (0 m after detrending) down to the lowest
+    point of the azimuth-averaged interior. 0 for an axisymmetric bowl; an off-centre
+    deepest point moves it towards that side.
+
+    Parameters
+    ----------
+    zd : ndarray, shape (n, n_az, n_r)
+        Detrended profiles (metres above the plain), NaN = no data.
+    r_norm : ndarray, shape (n_r,)
+    theta : ndarray, shape (n_az,)
+    w : ndarray, shape (b, n_az), optional
+        Bootstrap counts of each azimuth.
+
+    Returns
+    -------
+    ndarray, shape (n,) or (n, b)
+    """
+    sel = r_norm <= BOWL_ZONE
+    z = zd[:, :, sel]
+    r = r_norm[sel]
+    ok = np.isfinite(z)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(ok, z, 0.0).sum(1) / ok.sum(1)  # azimuth-averaged interior (n, n_r)
+    low = np.where(np.isfinite(mean), mean, np.inf).min(-1)  # its lowest point
+    half = np.where(np.isfinite(low) & (low < 0), 0.5 * low, np.nan)
+    dep = np.clip(half[:, None, None] - z, 0.0, None)
+    dep = np.where(np.isfinite(dep), dep, 0.0) * r  # area element r dr
+    s0 = dep.sum(-1)  # (n, n_az)
+    s1 = (dep * r).sum(-1)
+    cx, sy = s1 * np.cos(theta), s1 * np.sin(theta)
+    if w is None:
+        X, Y, M = cx.sum(-1), sy.sum(-1), s0.sum(-1)
+    else:
+        X, Y, M = cx @ w.T, sy @ w.T, s0 @ w.T
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(M > 0, np.hypot(X, Y) / M, np.nan)
 
 
 def _last_true(mask):

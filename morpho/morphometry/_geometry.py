@@ -14,15 +14,24 @@ __all__ = ["fit_circle", "fit_ellipse", "harmonic_amplitudes", "wquantile", "wsu
 
 
 def _solve_batched(a, b):
-    """Solve ``a x = b`` for stacks of small systems; NaN where singular."""
-    det = np.linalg.det(a)
-    scale = np.einsum("...ii->...", np.abs(a)) ** a.shape[-1] + 1e-300
-    ok = np.isfinite(det) & (np.abs(det) > 1e-12 * scale)
+    """Solve ``a x = b`` for stacks of small symmetric systems; NaN where singular.
+
+    The test for singularity is made on the Jacobi-scaled matrix ``D a D`` with
+    ``D = diag(a)^-1/2`` (unit diagonal), so it does not depend on the units of the
+    unknowns: normal equations mixing counts, metres and square metres (a circle fit to
+    a 400 km rim in metres) are judged by their conditioning, not by their scale.
+    """
+    d = np.einsum("...ii->...i", a)
+    pos = np.isfinite(d) & (d > 0)
+    s = 1.0 / np.sqrt(np.where(pos, d, 1.0))
+    a_s = a * s[..., :, None] * s[..., None, :]
+    det = np.linalg.det(a_s)
+    ok = pos.all(-1) & np.isfinite(det) & (np.abs(det) > 1e-12)
     eye = np.broadcast_to(np.eye(a.shape[-1]), a.shape)
-    safe = np.where(ok[..., None, None], a, eye)
+    safe = np.where(ok[..., None, None], a_s, eye)
     with np.errstate(invalid="ignore", over="ignore"):
-        x = np.linalg.solve(safe, b[..., None])[..., 0]
-    return np.where(ok[..., None], x, np.nan)
+        y = np.linalg.solve(safe, (b * s)[..., None])[..., 0]
+    return np.where(ok[..., None], y * s, np.nan)
 
 
 def wsum(products, w=None):
@@ -229,6 +238,40 @@ def wquantile(values, q, w=None):
     idx = np.argmax(cum >= q * total - 1e-9, axis=-1)
     out = np.take_along_axis(np.broadcast_to(srt, ws.shape), idx[..., None], -1)[..., 0]
     return np.where(total[..., 0] > 0, out, np.nan)
+
+
+def wmad_relative(values, w=None):
+    """Robust relative spread ``1.4826 MAD / median`` along the azimuth axis, NaN ignored.
+
+    The median absolute deviation ignores a minority of disturbed azimuths (a neighbour's
+    rim, a gap), so the spread stays that of the crater itself (Rousseeuw & Croux 1993,
+    JASA 88:1273; 1.4826 makes it the standard deviation for normal data).
+
+    Parameters
+    ----------
+    values : ndarray, shape (n, m)
+    w : ndarray, shape (b, m), optional
+        Weights per replicate.
+
+    Returns
+    -------
+    ndarray, shape (n,) or (n, b)
+        NaN where the median is not positive.
+    """
+    med = wquantile(values, 0.5, w)
+    if w is None:
+        mad = wquantile(np.abs(values - med[:, None]), 0.5)
+    else:
+        dev = np.abs(values[:, None, :] - med[..., None])  # (n, b, m)
+        order = np.argsort(np.where(np.isfinite(dev), dev, np.inf), axis=-1)
+        srt = np.take_along_axis(dev, order, -1)
+        ws = np.where(np.isfinite(srt), np.take_along_axis(np.broadcast_to(w, dev.shape), order, -1), 0.0)
+        cum = np.cumsum(ws, -1)
+        total = cum[..., -1:]
+        idx = np.argmax(cum >= 0.5 * total - 1e-9, axis=-1)
+        mad = np.where(total[..., 0] > 0, np.take_along_axis(srt, idx[..., None], -1)[..., 0], np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(med > 0, 1.4826 * mad / med, np.nan)
 
 
 def nanquantile_last(a, q):

@@ -6,8 +6,9 @@ import numpy as np
 import pandas as pd
 
 from ._degradation import degradation_columns
-from ._features import azimuth_features, crest_shape, profile_features
-from ._geometry import replicate_std
+from ._detrend import ANNULUS, FLANK_EXPONENT
+from ._features import azimuth_features, bowl_offset, crest_shape, profile_features
+from ._geometry import nanquantile_last, replicate_std
 from ._refine import (
     MIN_COVERAGE,
     detrended_profiles,
@@ -28,8 +29,10 @@ FEATURES_WITH_ERROR = (
     "central_peak_basal_width_m", "central_pit_depth_m", "rim_curvature_norm",
     "rim_crest_angle_deg", "interior_shape_exponent", "cavity_volume_m3",
     "rim_flank_decay_exponent", "outline_irregularity", "polygonality_index",
-    "rim_height_asymmetry",
+    "rim_height_asymmetry", "rim_height_variation", "outline_spread", "bowl_offset",
 )
+#: Quantile of the absolute annulus residuals reported by :func:`exterior_roughness`.
+EXTERIOR_QUANTILE = 0.9
 #: Refinement passes before measuring (the measurement itself is a third crest pass).
 REFINE_PASSES = 2
 #: Crest search window around the refined radius (crater radii).
@@ -37,6 +40,24 @@ FINAL_WINDOW = (0.7, 1.3)
 #: Below this many pixels across, a crater is not measured (Robbins et al. 2014 Icarus 234
 #: advise caution at <= 10 px; below 5 px the rim cannot be located at all).
 MIN_PIXELS = 5.0
+
+
+def exterior_roughness(zd, r_norm, coef, depth):
+    """How far the surroundings depart from the fitted plain and flank, over the depth.
+
+    The 90th percentile of the absolute residuals of the 1.3-2.5 R annulus about the
+    robust fit (plane + ``e (r/R)^-3``), divided by the crater depth: near 0 on an open
+    plain, large where a neighbouring crater cuts a sector of the surroundings (then rim
+    and flank features are less trustworthy). A high quantile, not the MAD, on purpose:
+    the robust fit ignores a disturbed sector, this measure must see it.
+    """
+    sel = np.flatnonzero((r_norm >= ANNULUS[0]) & (r_norm <= ANNULUS[1]))
+    sel = sel[:: max(1, int(np.ceil(sel.size / 10)))]  # ~10 rings, as the fit itself
+    res = zd[:, :, sel] - coef[:, 3, None, None] * r_norm[sel] ** -FLANK_EXPONENT
+    n = res.shape[0]
+    q90 = nanquantile_last(np.abs(res.reshape(n, -1)), EXTERIOR_QUANTILE)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(depth > 0, q90 / depth, np.nan)
 
 
 def _combine(az, pr):
@@ -61,7 +82,14 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     with np.errstate(invalid="ignore", divide="ignore"):
         mean_prof = zf.sum(1) / valid.sum(1)
     az_point = azimuth_features(az, crest_r_m, crest.z, curv, angle)
-    point = _combine(az_point, profile_features(mean_prof, r_norm, radius_m, az_point["rim_z"]))
+    rim_z = az_point["rim_z"]
+    point = _combine(az_point, profile_features(mean_prof, r_norm, radius_m, rim_z))
+    point["bowl_offset"] = bowl_offset(zd, r_norm, az)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        # The annulus fit's r^-3 term over the rim height: ~1 for a flank continuous with
+        # the rim (McGetchin et al. 1973 ejecta), ~0 for a lip that ends near the rim.
+        point["ejecta_flank_ratio"] = np.where(rim_z > 0, coef[:, 3] / rim_z, np.nan)
+    point["exterior_roughness"] = exterior_roughness(zd, r_norm, coef, point["depth_m"])
     n_boot = boot_idx.shape[0]
     # Without replicates the _err columns stay, as NaN: one schema whatever n_boot is.
     errs = {f"{name}_err": np.full(rows.size, np.nan) for name in FEATURES_WITH_ERROR}
@@ -76,6 +104,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
                          / np.matmul(valid.transpose(0, 2, 1).astype(float), counts.T)).transpose(0, 2, 1)
         azb = azimuth_features(az, crest_r_m, crest.z, curv, angle, counts)
         boot = _combine(azb, profile_features(boot_prof, r_norm, radius_m[:, None], azb["rim_z"]))
+        boot["bowl_offset"] = bowl_offset(zd, r_norm, az, counts)
         for name in FEATURES_WITH_ERROR:
             errs[f"{name}_err"] = replicate_std(boot[name])
     out = pd.DataFrame({"row": rows, "col": cols, "radius_px": rad})

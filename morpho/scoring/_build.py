@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import os
 import time
 from pathlib import Path
 
@@ -23,7 +24,7 @@ __all__ = ["DEFAULT_SEED", "DEFAULT_N_PER_CLASS", "rebuild_command", "rebuild_mo
 log = logging.getLogger(__name__)
 
 DEFAULT_SEED = 6
-DEFAULT_N_PER_CLASS = 1800
+DEFAULT_N_PER_CLASS = 3600
 #: Held-out craters per class, rendered with a seed no training crater used.
 HELD_OUT_SEED_OFFSET = 1_000_003
 #: Normalised degradation of the stress-test craters (beyond the training range).
@@ -38,7 +39,7 @@ def rebuild_command(hypotheses_dir, output, seed, n_per_class) -> str:
 
 def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
                   n_per_class: int = DEFAULT_N_PER_CLASS, n_held_out: int | None = None,
-                  overwrite: bool = False, body: str = "moon", command_dir=None):
+                  overwrite: bool = False, body: str = "moon", command_dir=None, n_jobs: int | None = None):
     """Train a model on craters rendered from ``hypotheses_dir`` and write ``<output>.skops`` + card.
 
     Parameters
@@ -58,6 +59,9 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
     body : str
     command_dir : str, optional
         How ``hypotheses_dir`` is spelled in the recorded rebuild command.
+    n_jobs : int, optional
+        Processes rendering and measuring craters (default: all CPU cores). The model does
+        not depend on it.
 
     Returns
     -------
@@ -75,19 +79,21 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
                                 fix="pass --overwrite, or choose another -o.")
     hyps = load_hypotheses_dir(hypotheses_dir)
     n_held_out = max(30, n_per_class // 2) if n_held_out is None else int(n_held_out)
+    jobs = {"n_jobs": int(n_jobs) if n_jobs else (os.cpu_count() or 1)}
 
     t0 = time.perf_counter()
     log.info("rendering and measuring %d training craters per class", n_per_class)
-    train = build_training_set(hyps, n_per_class=n_per_class, body=body, seed=seed)
+    train = build_training_set(hyps, n_per_class=n_per_class, body=body, seed=seed, **jobs)
     model = train_model(train, seed=seed)
     train_s = time.perf_counter() - t0
     log.info("trained in %.0f s; evaluating on held-out craters", train_s)
-    held = build_training_set(hyps, n_per_class=n_held_out, body=body, seed=seed + HELD_OUT_SEED_OFFSET)
+    held = build_training_set(hyps, n_per_class=n_held_out, body=body, seed=seed + HELD_OUT_SEED_OFFSET,
+                              **jobs)
     evaluation = evaluate_model(model, held)
     bowls = fresh_bowl_check(model, seed=seed + 2 * HELD_OUT_SEED_OFFSET, body=body)
     # Stress test outside the training range: strongly degraded craters of every family.
     worn = build_training_set(hyps, n_per_class=max(30, n_held_out // 3), body=body,
-                              seed=seed + 3 * HELD_OUT_SEED_OFFSET, degradation=STRESS_DEGRADATION)
+                              seed=seed + 3 * HELD_OUT_SEED_OFFSET, degradation=STRESS_DEGRADATION, **jobs)
     stress = evaluate_model(model, worn)
 
     counts = train["family"].value_counts().sort_index()

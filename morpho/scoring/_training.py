@@ -7,6 +7,7 @@ as a small DEM patch by :func:`morpho.synth.render_crater_patches` and measured 
 
 from __future__ import annotations
 
+import functools
 import logging
 import time
 
@@ -57,6 +58,8 @@ NON_FEATURES = frozenset({
     # measured on the mean profile out to 2.5 R, so a neighbour's rim or ejecta swings it
     # (fresh impact craters next to a neighbour read 7-20 instead of ~3): too fragile
     "rim_flank_decay_exponent",
+    # the surroundings, not the crater: a measurement-quality covariate for the reader
+    "exterior_roughness",
 })
 
 
@@ -166,6 +169,7 @@ def build_training_set(
     seed: int = 0,
     degradation=TRAINING_DEGRADATION,
     surface_share: float = SURFACE_SHARE,
+    n_jobs: int = 1,
 ) -> pd.DataFrame:
     """Render and measure craters of every hypothesis family.
 
@@ -190,6 +194,8 @@ def build_training_set(
         Share of the craters taken from whole mixed-family surfaces (neighbours, ejecta,
         superposition; :func:`morpho.scoring._surfaces.surface_training_set`); the rest are
         single-crater patches (:func:`morpho.synth.render_crater_patches`).
+    n_jobs : int
+        Processes rendering and measuring in parallel (the table does not depend on it).
 
     Returns
     -------
@@ -199,7 +205,6 @@ def build_training_set(
         ``truth_complex``, ``truth_diameter_m``, ``truth_depth_diameter``.
     """
     from ..hypotheses import default_hypotheses
-    from ..synth import render_crater_patches
 
     hyps = default_hypotheses() if hypotheses is None else dict(hypotheses)
     impact = [h for h in hyps.values() if h.origin == "impact"]
@@ -215,7 +220,9 @@ def build_training_set(
     plan = [(impact[0], n_patch)] + [(h, n_spot) for h in sorted(spots, key=lambda h: h.name)]
     bands = [tuple(map(float, b)) for b in pixels_per_diameter_bands]
     children = np.random.SeedSequence(seed).spawn(len(plan) * len(bands) + len(bands))
-    frames = []
+    # Every job has its own child seed and the results are joined in job order, so the
+    # table is the same whatever the number of processes.
+    jobs = []
     k = 0
     for h, n in plan:
         per_band = np.full(len(bands), n // len(bands))
@@ -223,34 +230,58 @@ def build_training_set(
         for band, nb in zip(bands, per_band, strict=True):
             child = int(children[k].generate_state(1)[0])
             k += 1
-            if nb == 0:
-                continue
-            patches, truth = render_crater_patches(h.name, int(nb), pixels_per_diameter=band,
-                                                   noise_m=noise_m, body=body, seed=child,
-                                                   hypotheses=hyps, degradation=degradation)
-            df = measure_patches(patches, truth, seed=child)
-            # Truth for diagnostics only (never a feature: feature_columns reads the dictionary).
-            for col in ("degradation", "complex", "diameter_m"):
-                if col in truth:
-                    df[f"truth_{col}"] = truth[col].to_numpy()
-            df["truth_depth_diameter"] = (truth["depth_m"] / truth["diameter_m"]).to_numpy()
-            if "pixels_per_diameter" not in df:
-                df["pixels_per_diameter"] = 2.0 * df["radius_px"].astype(np.float64)
-            df["family"] = h.name
-            df["origin"] = "impact" if h.origin == "impact" else "spot"
-            df["ppd_band"] = f"{band[0]:g}-{band[1]:g}"
-            df["context"] = "patch"
-            frames.append(df)
+            if nb > 0:
+                jobs.append(("patch", h.name, int(nb), band, child))
     if n_surface > 0:
         per_band = int(np.ceil(2 * n_surface / len(bands)))
         for band in bands:
             child = int(children[k].generate_state(1)[0])
             k += 1
-            df = surface_training_set(hyps, per_band, band, body=body, seed=child, degradation=degradation)
-            df["ppd_band"] = f"{band[0]:g}-{band[1]:g}"
-            df["context"] = "surface"
-            frames.append(df)
+            # Split each band's surfaces into a few jobs so that processes stay busy.
+            parts = max(1, min(8, per_band // 100))
+            for j in range(parts):
+                sub = int(np.random.SeedSequence([child, j]).generate_state(1)[0]) if parts > 1 else child
+                jobs.append(("surface", None, per_band // parts + (j < per_band % parts), band, sub))
+    args = dict(hyps=hyps, noise_m=noise_m, body=body, degradation=degradation)
+    n_jobs = max(1, min(int(n_jobs), len(jobs)))
+    if n_jobs == 1:
+        frames = [_training_job(job, **args) for job in jobs]
+    else:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        # "spawn": a clean interpreter per worker (no inherited threads or locks); the
+        # one-thread BLAS setting travels in the environment.
+        with ProcessPoolExecutor(n_jobs, mp_context=multiprocessing.get_context("spawn")) as pool:
+            frames = list(pool.map(functools.partial(_training_job, **args), jobs))
     return pd.concat(frames, ignore_index=True)
+
+
+def _training_job(job, *, hyps, noise_m, body, degradation) -> pd.DataFrame:
+    """Render and measure one (kind, family, n, band, seed) job of :func:`build_training_set`."""
+    from ..synth import render_crater_patches
+
+    kind, family, n, band, seed = job
+    if kind == "surface":
+        df = surface_training_set(hyps, n, band, body=body, seed=seed, degradation=degradation)
+        df["context"] = "surface"
+    else:
+        h = hyps[family]
+        patches, truth = render_crater_patches(family, n, pixels_per_diameter=band, noise_m=noise_m, body=body,
+                                               seed=seed, hypotheses=hyps, degradation=degradation)
+        df = measure_patches(patches, truth, seed=seed)
+        # Truth for diagnostics only (never a feature: feature_columns reads the dictionary).
+        for col in ("degradation", "complex", "diameter_m"):
+            if col in truth:
+                df[f"truth_{col}"] = truth[col].to_numpy()
+        df["truth_depth_diameter"] = (truth["depth_m"] / truth["diameter_m"]).to_numpy()
+        if "pixels_per_diameter" not in df:
+            df["pixels_per_diameter"] = 2.0 * df["radius_px"].astype(np.float64)
+        df["family"] = family
+        df["origin"] = "impact" if h.origin == "impact" else "spot"
+        df["context"] = "patch"
+    df["ppd_band"] = f"{band[0]:g}-{band[1]:g}"
+    return df
 
 
 def train_model(training: pd.DataFrame, seed: int = 0, **params) -> ImpactSpotClassifier:
