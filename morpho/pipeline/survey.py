@@ -228,9 +228,8 @@ class _ScorerLoader:
 
     Importing the scorer's libraries and reading the model is a fixed ~2-4 s that the tiles do
     not need. When the tiles run on Dask workers the main process only waits, so the model
-    loads meanwhile (with the modules the finish stage imports); the engine waits for it
-    before it keeps the first tile result (``before_first``), so a bad model file still stops
-    the survey before anything is written. In-process tiles load it first instead: a thread
+    loads meanwhile; the engine waits for it before it keeps the first tile result
+    (``before_first``), so a bad model file still stops the survey before anything is written. In-process tiles load it first instead: a thread
     importing Python modules beside numpy-heavy tile code slows both (each time the tile code
     takes back the GIL it waits for the importer; measured: 1024^2 tile 1.5 s -> 4-8 s).
     ``waited`` is the time the caller spent blocked on loading; ``seconds`` the loading itself.
@@ -254,8 +253,9 @@ class _ScorerLoader:
     def _load(self):
         t0 = time.perf_counter()
         try:
+            # Only the model: the finish stage's modules (+33 MB) would sit in this process beside
+            # the workers' peak memory; they load after the tiles.
             self._value = _load_scorer(self._model)
-            from .. import outputs, population, scaling  # noqa: F401 - warm the finish stage's imports
         except BaseException as err:  # noqa: BLE001 - handed to the caller in result()
             self._error = err
         self.seconds = time.perf_counter() - t0
