@@ -105,6 +105,26 @@ def test_half_crater_at_edge_kept_with_partial_coverage():
     assert hit.rim_coverage == pytest.approx(expected, abs=0.05)
 
 
+def test_surroundings_on_one_side_only_lower_the_confidence():
+    # The regional plane is fitted on the surroundings (1.3-2 R); with them on data on one side
+    # only, it is extrapolated across the other, and depth against it is no measurement of
+    # relief around the crater (extrapolating a fitted trend beyond its data: common practice).
+    radius = 20.0
+    z = bowl((160, 160), 80.0, 80.0, radius)
+    yy, xx = np.mgrid[0:160, 0:160]
+    far = np.hypot(yy - 80.0, xx - 80.0) > 1.25 * radius  # rim band (0.8-1.2 R) stays on data
+    full = nearest(detect_craters(z, SPACING), 80.0, 80.0)[0]
+    quarter = nearest(detect_craters(np.where(far & (xx < 80) & (yy < 80), np.nan, z), SPACING),
+                      80.0, 80.0)[0]
+    half = nearest(detect_craters(np.where(far & (xx < 80), np.nan, z), SPACING), 80.0, 80.0)[0]
+    assert full.detection_confidence > 0.9
+    # Surroundings missing on a quarter of the azimuths: the plane still encloses the crater.
+    assert quarter.detection_confidence == pytest.approx(full.detection_confidence, abs=0.02)
+    # Missing on half of them: still found (rim on data), rated lower.
+    assert half.radius_px == pytest.approx(radius, rel=0.05) and half.rim_coverage == 1.0
+    assert 0.4 <= half.detection_confidence < full.detection_confidence - 0.1
+
+
 def test_nodata_hole_not_filled_in():
     radius = 20.0
     z = bowl((128, 128), 64.0, 64.0, radius)

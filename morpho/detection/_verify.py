@@ -2,16 +2,17 @@
 
 Each candidate is sampled on a polar grid (:func:`morpho.morphometry.profiles.sample_radial_profiles`,
 never across nodata). A plane fitted to the surroundings (1.3-2 radii, with one round of outlier
-rejection) removes the regional slope. On every azimuth the rim crest is the highest point between
-0.5 and 1.5 radii in the coarse screening pass, and in the refinement and rating passes the innermost
-summit there that is nearly as high (:func:`morpho.morphometry._refine.inner_summit_index`, the rule
-of the morphometry refinement that follows); a least-squares circle through the crests (Kasa 1976)
-refines the centre and the rim-crest radius. The work is a cascade so that most candidates cost little: a coarse pass
+rejection) removes the regional slope. On every azimuth, in every pass, the rim crest is the
+innermost summit between 0.5 and 1.5 radii that is nearly as high as the highest point there
+(:func:`morpho.morphometry._refine.inner_summit_index`, the rule of the morphometry refinement that
+follows); a least-squares circle through the crests (Kasa 1976) refines the centre and the
+rim-crest radius. The work is a cascade so that most candidates cost little: a coarse pass
 (16 azimuths) screens on depth/diameter and depth/roughness and refits; candidates that converged
 on the same rim are merged; one refinement pass and a final rating follow at full resolution.
 The confidence is the product of: the share of azimuths with a crest above the floor, the
 roundness of the crest line, the depth/diameter ratio against a floor, the depth against the
-surrounding roughness, and the agreement of the crests with the fitted radius.
+surrounding roughness, the agreement of the crests with the fitted radius, and how far the
+surroundings that set the regional plane enclose the crater (see :func:`_rate`).
 
 References
 ----------
@@ -44,6 +45,11 @@ _RING = (1.3, 2.0)  # surroundings for the regional plane, radii
 _SUBSAMPLE = 0.0
 _CHUNK = 1500
 _FLOOR_MAX = 0.6  # floor searched inside this radius (crater radii)
+#: Share of azimuths whose surroundings (1.3-2 radii) must hold valid data for the regional
+#: plane to count as interpolated around the crater; below it the confidence falls in
+#: proportion (see :func:`_rate`). A choice made here, checked on the synthetic scenes of
+#: benchmarks/bench_detection.py (no change there) and the lunar DEM of tests/test_realdata_*.
+ENCLOSED_FULL = 0.75
 
 
 @dataclass(frozen=True)
@@ -85,8 +91,10 @@ def _plane_fit(basis, flat, mask):
     return np.linalg.solve(ata, atb[..., None])[..., 0]
 
 
-def _detrend(prof) -> tuple[np.ndarray, np.ndarray]:
-    """Elevation minus the regional plane, shape (n, A, M); and a robust roughness, shape (n,)."""
+def _detrend(prof) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Elevation minus the regional plane, shape (n, A, M); a robust roughness, shape (n,); and
+    the share of azimuths whose surroundings hold valid data (how far the plane encloses the
+    crater), shape (n,)."""
     zz = prof.z
     n, a, m = zz.shape
     basis = _plane_basis(prof)
@@ -105,15 +113,16 @@ def _detrend(prof) -> tuple[np.ndarray, np.ndarray]:
             with np.errstate(invalid="ignore"):
                 mask &= np.abs(res) <= 2.5 * sigma[:, None] + 1e-12
     sigma = np.where(mask.sum(axis=1) >= 8, sigma, np.inf)
-    return zz - (coef @ basis.T).reshape(n, a, m), sigma
+    enclosed = np.isfinite(zz[:, :, cols]).any(axis=2).mean(axis=1)
+    return zz - (coef @ basis.T).reshape(n, a, m), sigma, enclosed
 
 
-def _crests(d, r_norm, inner_summit=True):
+def _crests(d, r_norm):
     """Per-azimuth rim crest: normalised radius, height, crest-found and window-valid flags.
 
-    ``inner_summit``: the innermost summit nearly as high as the window's top
+    The crest is the innermost summit nearly as high as the window's top
     (:func:`~morpho.morphometry._refine.inner_summit_index`; on a degraded crater in rough terrain
-    the top is often outer terrain), else the highest point.
+    the top is often outer terrain); on a single-crested rim, the highest point.
     """
     i0, i1 = np.searchsorted(r_norm, _WIN[0]), np.searchsorted(r_norm, _WIN[1], side="right")
     win = d[:, :, i0:i1]
@@ -121,10 +130,7 @@ def _crests(d, r_norm, inner_summit=True):
     # on the inner wall or floor does not hide the rim, so it does not count against coverage.
     c0, c1 = np.searchsorted(r_norm, _COVER_MIN), np.searchsorted(r_norm, _COVER_MAX, side="right")
     finite = np.isfinite(d[:, :, c0:c1]).all(axis=2)
-    if inner_summit:
-        idx = inner_summit_index(win)
-    else:
-        idx = np.argmax(np.where(np.isfinite(win), win, -np.inf), axis=2)
+    idx = inner_summit_index(win)
     height = np.take_along_axis(win, idx[..., None], axis=2)[..., 0]
     # Parabolic sub-sample peak position where both neighbours exist.
     inner = (idx > 0) & (idx < win.shape[2] - 1)
@@ -140,12 +146,12 @@ def _crests(d, r_norm, inner_summit=True):
     return rho, height, found & finite, finite
 
 
-def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII, inner_summit=True):
+def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII):
     """One round of sampling: crest geometry and relief for every candidate."""
     prof = sample_radial_profiles(z, rows, cols, radius, n_azimuths=n_az, n_radii=n_radii,
                                   r_max_factor=_R_MAX)
-    d, rough = _detrend(prof)
-    rho, height, found, ok = _crests(d, prof.r_norm, inner_summit)
+    d, rough, enclosed = _detrend(prof)
+    rho, height, found, ok = _crests(d, prof.r_norm)
     # Floor = lowest level of the azimuth-averaged interior profile, not the centre: complex
     # craters carry central peaks or mounds above their floor.
     inner = prof.r_norm <= _FLOOR_MAX
@@ -154,7 +160,7 @@ def _assess(z, rows, cols, radius, n_az, n_radii=_N_RADII, inner_summit=True):
     relief = height - floor[:, None]
     # A crest counts when it rises above the floor and is a real maximum inside the window.
     good = found & (relief > 0)
-    return prof.azimuths, rho, relief, good, ok, rough
+    return prof.azimuths, rho, relief, good, ok, rough, enclosed
 
 
 def _refit(rows, cols, rad, az, rho, good, n_az):
@@ -184,8 +190,19 @@ def depth_ratio_floor(diameter_m, min_depth_ratio):
     return min_depth_ratio * np.minimum(1.0, (d / 10_000.0) ** -0.5)
 
 
-def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
-    """Confidence terms: roundness of the crest line, depth/diameter, depth/roughness."""
+def _rate(rho, relief, good, ok, rough, enclosed, rad, spacing_m, min_depth_ratio):
+    """Confidence terms: roundness of the crest line, depth/diameter, depth/roughness, enclosure.
+
+    Enclosure: the regional plane is fitted on the surroundings (1.3-2 radii) and subtracted
+    inside the rim. Where the surroundings lie on valid data on only some azimuths (a crater cut
+    by the DEM edge or a nodata gap beyond its rim), the plane is extrapolated across the
+    missing side, and the depth and roughness measured against it are no longer measurements
+    of relief around the crater but of the trend's extrapolation: e.g. a basin margin at a DEM
+    edge reads as one side of a large "crater". Extrapolating a fitted trend beyond the support
+    of its data is unreliable (common practice), so the confidence is scaled by
+    min(1, enclosed / ENCLOSED_FULL). Craters with most of their surroundings on data are
+    unaffected; a half crater at an edge keeps ~0.8 of its rating.
+    """
     coverage = ok.mean(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
         r_good = np.where(good, rho, np.nan)
@@ -205,9 +222,10 @@ def _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio):
     share = good.sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
     # Crests far from the fitted radius mean the refinement did not converge on this rim.
     t_fit = 1.0 - np.clip((np.abs(np.nan_to_num(med, nan=0.0) - 1.0) - 0.1) / 0.15, 0.0, 1.0)
-    conf = t_round * t_depth * t_snr * share * t_fit
+    t_encl = np.clip(enclosed / ENCLOSED_FULL, 0.0, 1.0)
+    conf = t_round * t_depth * t_snr * share * t_fit * t_encl
     terms = {"spread": spread, "depth_ratio": ratio, "snr": snr, "share": share, "fit": t_fit,
-             "partial": t_round * t_depth * t_snr * share}
+             "enclosed": enclosed, "partial": t_round * t_depth * t_snr * share * t_encl}
     return np.clip(conf, 0.0, 1.0), coverage, depth, terms
 
 
@@ -269,7 +287,7 @@ def verify_candidates(
     keys = ("rows", "cols", "radius_px", "confidence", "rim_coverage", "depth")
     merged = {k: np.concatenate([getattr(p, k) for p in parts]) for k in keys}
     terms = {k: np.concatenate([p.terms.get(k, np.empty(0)) for p in parts])
-             for k in ("spread", "depth_ratio", "snr", "share", "fit")}
+             for k in ("spread", "depth_ratio", "snr", "share", "fit", "enclosed")}
     return Verified(**merged, terms=terms)
 
 
@@ -278,10 +296,12 @@ def _screen(z, rows, cols, rad, spacing_m, min_depth_ratio):
     if rows.size == 0:
         e = np.empty(0)
         return e, e, e, e
-    # The highest point as crest: the screen only drops what cannot reach a useful confidence,
-    # and the maximum relief errs on the side of keeping a candidate.
-    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, 16, 33, inner_summit=False)
-    _, _, _, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
+    # The same crest rule as the later passes (innermost summit nearly as high as the window's
+    # top): the refit then moves a candidate towards the rim those passes rate, not onto an
+    # outer ridge that they would move it off again (a degraded crater with a higher outer
+    # terrain, e.g. one overlapped by a neighbour, otherwise ends between the two).
+    az, rho, relief, good, ok, rough, encl = _assess(z, rows, cols, rad, 16, 33)
+    _, _, _, terms = _rate(rho, relief, good, ok, rough, encl, rad, spacing_m, min_depth_ratio)
     # Screening on what an off-centre first guess cannot spoil: depth/diameter and
     # depth/roughness, with a loose roundness bound (a 20 % centre offset spreads crest radii by
     # ~13 %, more with a wrong radius). A final confidence of 0.4 needs at least these values.
@@ -300,8 +320,8 @@ def _refine_and_rate(z, rows, cols, rad, spacing_m, min_depth_ratio, n_azimuths)
     e = np.empty(0)
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})
-    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
-    conf, *_, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m, min_depth_ratio)
+    az, rho, relief, good, ok, rough, encl = _assess(z, rows, cols, rad, n_azimuths)
+    conf, *_, terms = _rate(rho, relief, good, ok, rough, encl, rad, spacing_m, min_depth_ratio)
     rows, cols, rad = _refit(rows, cols, rad, az, rho, good, n_azimuths)
     # A rim that rates below 0.15 from a centre within a few % of its own would not reach a
     # useful confidence after one more step: stop spending profiles on it. The agreement of
@@ -311,7 +331,7 @@ def _refine_and_rate(z, rows, cols, rad, spacing_m, min_depth_ratio, n_azimuths)
     rows, cols, rad = rows[live], cols[live], rad[live]
     if rows.size == 0:
         return Verified(e, e, e, e, e, e, {})
-    az, rho, relief, good, ok, rough = _assess(z, rows, cols, rad, n_azimuths)
-    conf, coverage, depth, terms = _rate(rho, relief, good, ok, rough, rad, spacing_m,
+    az, rho, relief, good, ok, rough, encl = _assess(z, rows, cols, rad, n_azimuths)
+    conf, coverage, depth, terms = _rate(rho, relief, good, ok, rough, encl, rad, spacing_m,
                                          min_depth_ratio)
     return Verified(rows, cols, rad, conf, coverage, depth, terms)
