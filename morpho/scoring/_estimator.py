@@ -135,7 +135,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         impact_label="impact",
         calibration="sigmoid",
         cv=3,
-        max_iter=300,
+        max_iter=150,
         learning_rate=0.1,
         max_leaf_nodes=15,
         l2_regularization=1.0,
