@@ -12,7 +12,7 @@ from ._geometry import nanquantile_last, replicate_std
 from ._refine import (
     MIN_COVERAGE,
     detrended_profiles,
-    find_crest,
+    find_inner_crest,
     radius_batches,
     refine_craters,
     sharpen_crest,
@@ -72,7 +72,7 @@ def _combine(az, pr):
 def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths)
     r_norm, az = prof.r_norm, prof.azimuths
-    crest = find_crest(zd, r_norm, FINAL_WINDOW)
+    crest = find_inner_crest(zd, r_norm, FINAL_WINDOW)
     crest = sharpen_crest(zd, r_norm, crest, rad)
     radius_m = rad * spacing
     crest_r_m = crest.r_norm * radius_m[:, None]
