@@ -151,11 +151,16 @@ def main(argv=None):
     ap.add_argument("--folder", type=Path, default=Path(tempfile.gettempdir()) / "morpho_bench")
     ap.add_argument("--render-only", action="store_true",
                     help="rewrite survey.md/png from the last run's results/survey.json")
+    ap.add_argument("--note", default="", help="a remark printed under the tables (e.g. on the machine's load)")
     args = ap.parse_args(argv)
     if args.render_only:
         saved = json.loads((HERE / "results" / "survey.json").read_text())
         args.workers, args.repeat = saved["workers"], saved["repeat"]
+        args.note = args.note or saved.get("note", "")
         write_results(saved["rows"], args, saved["loads"], saved["reference"])
+        if args.note != saved.get("note", ""):
+            saved["note"] = args.note
+            (HERE / "results" / "survey.json").write_text(json.dumps(saved, indent=1, default=float) + "\n")
         return
     args.folder.mkdir(parents=True, exist_ok=True)
     rows = []
@@ -186,7 +191,8 @@ def main(argv=None):
                   f"[{', '.join(f'{k} {v:.2f}' for k, v in sorted(r['stages'].items()))}]", flush=True)
     (HERE / "results").mkdir(exist_ok=True)
     (HERE / "results" / "survey.json").write_text(json.dumps(
-        {"workers": args.workers, "repeat": args.repeat, "loads": loads, "reference": ref, "rows": rows},
+        {"workers": args.workers, "repeat": args.repeat, "loads": loads, "reference": ref, "rows": rows,
+         "note": args.note},
         indent=1, default=float) + "\n")
     write_results(rows, args, loads, ref)
 
@@ -272,6 +278,8 @@ def write_results(rows, args, loads, ref=None):
             lines.append(f"- {w} worker(s): " + ", ".join(f"{r['n']}^2 {p:.2f}" for r, p in zip(sel, per, strict=True))
                          + f" s/Mpx; largest deviation from the median {worst:.0%} -> {ok}.")
     lines += ["", *issue_figures(rows)]
+    if args.note:
+        lines += ["", f"Note: {args.note}"]
     (HERE / "results").mkdir(exist_ok=True)
     (HERE / "results" / "survey.md").write_text("\n".join(lines) + "\n")
     plot(rows, args)
