@@ -35,7 +35,7 @@ def stage_seconds(result, *, startup: float | None = None, write: float | None =
 
     Keys: ``start-up`` (Python, imports, option parsing), ``model wait`` (time the survey
     waited for its scoring model, which loads beside the tiles), ``cluster`` (starting and
-    closing Dask workers), ``warm-up`` (importing the tile code in this process), then the
+    closing Dask workers), ``warm-up`` (importing the tile and finish-stage code in this process), then the
     area-dependent stages of :data:`AREA_STAGES`.
     """
     run = result.run if isinstance(result.run, dict) else {}
