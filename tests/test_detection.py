@@ -287,3 +287,30 @@ def test_rim_not_moved_to_a_higher_outer_ridge(radius):
     assert got.radius_px == pytest.approx(radius, rel=0.08)
     ref = refine_craters(z, SPACING, [got.row], [got.col], [got.radius_px])
     assert ref.loc[0, "radius_px"] == pytest.approx(radius, rel=0.04)
+
+
+def test_ring_response_matches_scipy_signal_fftconvolve():
+    # Independent reference: scipy.signal.fftconvolve(mode="same") of the masked image with the
+    # ring and disk kernels (the formulation the shared-transform code replaces).
+    from scipy import signal
+
+    from morpho.detection import _candidates
+    from morpho.detection._verify import depth_ratio_floor
+
+    rng = np.random.default_rng(0)
+    sm = rng.normal(size=(90, 120))
+    valid = rng.random((90, 120)) > 0.1
+    radii = np.array([3.0, 7.5, 15.0])
+    out = _candidates._ring_response(sm, valid, radii, 10.0, 0.05)
+    vf, zf = valid.astype(float), np.where(valid, sm, 0.0)
+    for j, r in enumerate(radii):
+        n = int(np.ceil(1.2 * r))
+        yy, xx = np.mgrid[-n:n + 1, -n:n + 1]
+        rho = np.hypot(yy, xx) / r
+        ring, disk = ((rho >= 0.85) & (rho <= 1.15)).astype(float), (rho <= 0.6).astype(float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rim = signal.fftconvolve(zf, ring, mode="same") / signal.fftconvolve(vf, ring, mode="same")
+            inner = signal.fftconvolve(zf, disk, mode="same") / signal.fftconvolve(vf, disk, mode="same")
+            d_m = 2.0 * r * 10.0
+            ref = np.nan_to_num((rim - inner) / (d_m * depth_ratio_floor(d_m, 0.05)), nan=0.0, posinf=0.0, neginf=0.0)
+        np.testing.assert_allclose(out[j], ref, rtol=1e-9, atol=1e-9)

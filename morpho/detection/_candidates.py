@@ -24,7 +24,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import ndimage, signal
+from scipy import fft as sfft
+from scipy import ndimage
 
 from ._verify import depth_ratio_floor
 
@@ -214,6 +215,18 @@ def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
     vf = valid.astype(np.float64)
     zf = np.where(valid, sm, 0.0).astype(np.float64)
     out = np.empty((radii.size,) + sm.shape)
+    h, w = sm.shape
+    # One zero-padded transform size that holds the largest kernel's full linear
+    # convolution serves every radius, so the image and mask are transformed once
+    # (scipy.fft only: scipy.signal would import scipy.stats into every worker).
+    n_max = int(np.ceil(1.2 * float(np.max(radii)))) if radii.size else 0
+    fshape = (sfft.next_fast_len(h + 2 * n_max, real=True), sfft.next_fast_len(w + 2 * n_max, real=True))
+    fz, fv = sfft.rfftn(zf, fshape), sfft.rfftn(vf, fshape)
+
+    def same(fimg, kernel, n):
+        # Linear convolution cropped to the image ('same' mode): the kernel is (2n+1)^2.
+        return sfft.irfftn(fimg * sfft.rfftn(kernel, fshape), fshape)[n:n + h, n:n + w]
+
     for j, r in enumerate(radii):
         n = int(np.ceil(1.2 * r))
         yy, xx = np.mgrid[-n:n + 1, -n:n + 1]
@@ -221,8 +234,8 @@ def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
         ring = ((rho >= 0.85) & (rho <= 1.15)).astype(np.float64)
         disk = (rho <= 0.6).astype(np.float64)
         with np.errstate(divide="ignore", invalid="ignore"):
-            rim = signal.fftconvolve(zf, ring, mode="same") / signal.fftconvolve(vf, ring, mode="same")
-            inner = signal.fftconvolve(zf, disk, mode="same") / signal.fftconvolve(vf, disk, mode="same")
+            rim = same(fz, ring, n) / same(fv, ring, n)
+            inner = same(fz, disk, n) / same(fv, disk, n)
         d_m = 2.0 * r * d_scale_m
         with np.errstate(divide="ignore", invalid="ignore"):
             rel = (rim - inner) / (d_m * depth_ratio_floor(d_m, min_depth_ratio))
