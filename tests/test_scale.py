@@ -135,7 +135,7 @@ def test_stage_times_add_up_to_the_survey_time(serial):
 
 
 @pytest.mark.slow
-def test_bad_model_loaded_beside_dask_tiles_stops_before_anything_is_kept(tmp_path, crater_dem):
+def test_broken_model_file_stops_a_dask_survey_before_anything_is_kept(tmp_path, crater_dem):
     from morpho.errors import ModelFileError
 
     model = tmp_path / "broken.skops"

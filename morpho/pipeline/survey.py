@@ -12,7 +12,6 @@ from __future__ import annotations
 import json
 import logging
 import math
-import threading
 import time
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -223,49 +222,74 @@ def _load_scorer(model):
     return load_model(model_path), model_path
 
 
-class _ScorerLoader:
-    """Loads the scoring model, in a background thread while Dask workers run the tiles.
+def _precheck_model(model) -> None:
+    """Cheap checks of a user's model file before any tile runs (no scikit-learn import).
 
-    Importing the scorer's libraries and reading the model is a fixed ~2-4 s that the tiles do
-    not need. When the tiles run on Dask workers the main process only waits, so the model
-    loads meanwhile; the engine waits for it before it keeps the first tile result
-    (``before_first``), so a bad model file still stops the survey before anything is written. In-process tiles load it first instead: a thread
-    importing Python modules beside numpy-heavy tile code slows both (each time the tile code
-    takes back the GIL it waits for the importer; measured: 1024^2 tile 1.5 s -> 4-8 s).
-    ``waited`` is the time the caller spent blocked on loading; ``seconds`` the loading itself.
+    A missing file or one that is not a readable zip archive with a skops schema stops the
+    survey at once; types and versions are checked when the model is loaded after the tiles
+    (the finished tiles then stay in the run folder for ``--resume``).
+    """
+    import zipfile
+
+    from ..errors import ModelFileError
+
+    if model is None or model == "default":
+        return  # the shipped model, checked by the tests
+    path = Path(model)
+    if not path.is_file():
+        raise ModelFileError("no model file here.", path=path,
+                             fix="give the path of a .skops model (default: morpho.scoring.default_model_path()).")
+    try:
+        with zipfile.ZipFile(path) as zf:
+            ok = "schema.json" in zf.namelist() and zf.testzip() is None
+    except (zipfile.BadZipFile, OSError) as err:
+        raise ModelFileError(f"the model file is corrupt or not a skops file ({err}).", path=path,
+                             fix="rebuild it with `morpho train` or reinstall morpho.") from err
+    if not ok:
+        raise ModelFileError("the model file is corrupt or not a skops file (no readable schema).", path=path,
+                             fix="rebuild it with `morpho train` or reinstall morpho.")
+
+
+class _ScorerLoader:
+    """Loads the scoring model: before in-process tiles, after Dask tiles.
+
+    Importing the scorer's libraries and reading the model is a fixed ~2 s. In-process tiles
+    load it first (a thread importing modules beside numpy-heavy tile code slows both:
+    measured 1024^2 tile 1.5 s -> 4-8 s). With Dask workers it is loaded after the tiles:
+    loading it beside them put ~124 MB (scikit-learn, skops, the model) in the main process
+    during the workers' memory peak, which took an 8192^2 survey over 2 GiB. A user's model
+    file gets cheap checks up front (:func:`_precheck_model`), so a missing or broken file
+    still stops the survey before any tile runs. ``waited`` is the time the caller spent
+    blocked on loading; ``seconds`` the loading itself.
     """
 
-    def __init__(self, model, *, background: bool):
+    def __init__(self, model, *, defer: bool):
         self._model = model
         self._value = None
         self._error: BaseException | None = None
         self.seconds = 0.0
         self.waited = 0.0
-        self._thread = None
-        if background:
-            self._thread = threading.Thread(target=self._load, name="morpho-scorer-load")
-            self._thread.start()
+        if defer:
+            _precheck_model(model)
         else:
-            self._load()
-            self.waited = self.seconds
             self.result()  # a bad model file fails here, before any tile runs
+
+    def check(self):
+        """Nothing to wait for: the engine's ``before_first`` hook (checks ran at construction)."""
 
     def _load(self):
         t0 = time.perf_counter()
         try:
-            # Only the model: the finish stage's modules (+33 MB) would sit in this process beside
-            # the workers' peak memory; they load after the tiles.
             self._value = _load_scorer(self._model)
-        except BaseException as err:  # noqa: BLE001 - handed to the caller in result()
+        except BaseException as err:  # noqa: BLE001 - re-raised by result()
             self._error = err
         self.seconds = time.perf_counter() - t0
+        self.waited += self.seconds
 
     def result(self):
-        """The loaded ``(model, model_path)``; re-raises the loading error in the caller's thread."""
-        if self._thread is not None and self._thread.is_alive():
-            t0 = time.perf_counter()
-            self._thread.join()
-            self.waited += time.perf_counter() - t0
+        """The loaded ``(model, model_path)``, loading it on first call; re-raises a loading error."""
+        if self._value is None and self._error is None:
+            self._load()
         if self._error is not None:
             raise self._error
         return self._value
@@ -334,7 +358,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
 def _run_timing(run, loader: _ScorerLoader, waited_in_tiles: float) -> dict:
     """Stage times around the tiles: fixed costs (cluster, waiting for the model) apart from tile work."""
     return {
-        "model_load": loader.seconds,  # in the background; only ``model_wait`` delayed the survey
+        "model_load": loader.seconds,  # before in-process tiles, after Dask tiles
         "model_wait": loader.waited,
         "cluster": run.cluster_seconds,
         "warmup": run.warmup_seconds,
@@ -425,14 +449,14 @@ def survey(
                     z_offset=z_offset, min_diameter_px=min_diameter_px)
     specs, max_d = _tiling(info, tile_size, max_diameter_px)
     timing = {"open": time.perf_counter() - t_start}  # opening the DEM and planning its tiles
-    loader = _ScorerLoader(model, background=uses_dask(len(specs), workers, scheduler))
+    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler))
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
     waited_before = loader.waited
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
                     run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
-                    before_first=loader.result, warm_modules=TILE_MODULES)
+                    before_first=loader.check, warm_modules=TILE_MODULES)
     log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
     t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
@@ -508,7 +532,7 @@ def measure(
     overlap = 0 if single else int(math.ceil(1.25 * max_d_px))
     specs = plan_tiles(info, max(info.height, info.width) if single else tile_size, overlap)
     timing = {"open": time.perf_counter() - t_start}  # opening the DEM and planning its tiles
-    loader = _ScorerLoader(model, background=uses_dask(len(specs), workers, scheduler))
+    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler))
     # Craters whose centre is outside the raster are reported, not silently dropped.
     inv = ~info.transform
     col = inv.c + inv.a * craters["x"].to_numpy(float) + inv.b * craters["y"].to_numpy(float)
@@ -519,7 +543,7 @@ def measure(
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
     waited_before = loader.waited
     run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.result,
+                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.check,
                     warm_modules=TILE_MODULES)
     t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
     frames = [f for f in run.results if len(f)]
