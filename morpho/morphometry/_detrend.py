@@ -17,6 +17,15 @@ ANNULUS = (1.3, 2.5)
 FLANK_EXPONENT = 3.0
 
 
+def annulus_rings(r_norm, annulus=ANNULUS):
+    """Indices of the ~10 profile radii of the annulus used by the regional fit.
+
+    About 10 rings x n_az samples are plenty for the fit's four coefficients.
+    """
+    sel = np.flatnonzero((r_norm >= annulus[0]) & (r_norm <= annulus[1]))
+    return sel[:: max(1, int(np.ceil(sel.size / 10)))]
+
+
 def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=3):
     """Fit ``z = a + b u + c v + e (r/R)^-3`` to an annulus by iteratively reweighted LSQ.
 
@@ -53,9 +62,7 @@ def fit_annulus_plane(zp, r_norm, azimuths, radius_px, annulus=ANNULUS, n_iter=3
     Holland P.W., Welsch R.E. (1977) Robust regression using iteratively reweighted
     least-squares. Commun. Stat. Theory Methods 6(9):813-827.
     """
-    sel = np.flatnonzero((r_norm >= annulus[0]) & (r_norm <= annulus[1]))
-    if sel.size > 10:  # ~10 rings x n_az samples are plenty for four coefficients
-        sel = sel[:: int(np.ceil(sel.size / 10))]
+    sel = annulus_rings(r_norm, annulus)
     n = zp.shape[0]
     z = zp[:, :, sel].reshape(n, -1)
     # Work in crater radii (all basis columns of order 1: a well-conditioned system);

@@ -233,10 +233,15 @@ def wquantile(values, q, w=None):
     else:
         ws = np.where(ok[:, None, :], w[:, order].transpose(1, 0, 2), 0.0)  # (n, b, m)
         srt = srt[:, None, :]
+    return _pick_quantile(np.broadcast_to(srt, ws.shape), ws, q)
+
+
+def _pick_quantile(srt, ws, q):
+    """Quantile ``q`` from values sorted along the last axis and their weights (same shape)."""
     cum = np.cumsum(ws, -1)
     total = cum[..., -1:]
     idx = np.argmax(cum >= q * total - 1e-9, axis=-1)
-    out = np.take_along_axis(np.broadcast_to(srt, ws.shape), idx[..., None], -1)[..., 0]
+    out = np.take_along_axis(srt, idx[..., None], -1)[..., 0]
     return np.where(total[..., 0] > 0, out, np.nan)
 
 
@@ -266,10 +271,7 @@ def wmad_relative(values, w=None):
         order = np.argsort(np.where(np.isfinite(dev), dev, np.inf), axis=-1)
         srt = np.take_along_axis(dev, order, -1)
         ws = np.where(np.isfinite(srt), np.take_along_axis(np.broadcast_to(w, dev.shape), order, -1), 0.0)
-        cum = np.cumsum(ws, -1)
-        total = cum[..., -1:]
-        idx = np.argmax(cum >= 0.5 * total - 1e-9, axis=-1)
-        mad = np.where(total[..., 0] > 0, np.take_along_axis(srt, idx[..., None], -1)[..., 0], np.nan)
+        mad = _pick_quantile(srt, ws, 0.5)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(med > 0, 1.4826 * mad / med, np.nan)
 

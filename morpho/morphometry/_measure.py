@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from ._degradation import degradation_columns
-from ._detrend import ANNULUS, FLANK_EXPONENT
+from ._detrend import FLANK_EXPONENT, annulus_rings
 from ._features import azimuth_features, bowl_offset, crest_shape, profile_features
 from ._geometry import nanquantile_last, replicate_std
 from ._refine import (
@@ -51,8 +51,7 @@ def exterior_roughness(zd, r_norm, coef, depth):
     and flank features are less trustworthy). A high quantile, not the MAD, on purpose:
     the robust fit ignores a disturbed sector, this measure must see it.
     """
-    sel = np.flatnonzero((r_norm >= ANNULUS[0]) & (r_norm <= ANNULUS[1]))
-    sel = sel[:: max(1, int(np.ceil(sel.size / 10)))]  # ~10 rings, as the fit itself
+    sel = annulus_rings(r_norm)  # the rings the fit itself used
     res = zd[:, :, sel] - coef[:, 3, None, None] * r_norm[sel] ** -FLANK_EXPONENT
     n = res.shape[0]
     q90 = nanquantile_last(np.abs(res.reshape(n, -1)), EXTERIOR_QUANTILE)
