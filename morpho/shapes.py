@@ -412,14 +412,16 @@ def diffuse_radial_profile(r_m, h_m, kappa_t_m2):
     lam, U, sq = _diffusion_modes(n_grid, dr)
     coef = (h0 * sq) @ U  # (m, n_grid)
     decay = np.exp(np.multiply.outer(kt1, lam))  # (k, n_grid)
-    if h2.shape[0] == 1:
-        out_grid = (coef * decay) @ U.T / sq  # (k, n_grid)
-    elif kt1.size in (1, h2.shape[0]):
-        out_grid = (coef * decay) @ U.T / sq  # (m, n_grid), broadcast row-wise
+    # Only the grid nodes up to the last requested radius are needed for the interpolation
+    # below; the padding beyond keeps the boundary away but is never read (halves the work).
+    n_out = min(n_grid, int(np.searchsorted(grid, r[-1], side="right")) + 1)
+    if h2.shape[0] == 1 or kt1.size in (1, h2.shape[0]):
+        # (k, n_out) for one profile; (m, n_out) broadcast row-wise for one time per profile
+        out_grid = (coef * decay) @ U[:n_out].T / sq[:n_out]
     else:
         raise ValueError(
             f"h_m has {h2.shape[0]} profiles but kappa_t_m2 has {kt1.size} values; give one per "
             "profile, a scalar, or a single profile"
         )
-    out = np.stack([np.interp(r, grid, row) for row in out_grid])
+    out = np.stack([np.interp(r, grid[:n_out], row) for row in out_grid])
     return out[0] if scalar_out else out

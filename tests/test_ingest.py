@@ -151,6 +151,25 @@ def test_truncated_geotiff(raster_writer):
         open_dem(path)
 
 
+def test_large_raster_checked_by_sample(raster_writer):
+    """Rasters over 1 Mpx are checked on a sample of windows (not every block), which must
+    still catch a truncated file and must not refuse a file whose valid data the sample misses."""
+    z = np.random.default_rng(2).normal(size=(1536, 1536)).astype("float32")
+    tiled = dict(tiled=True, blockxsize=256, blockysize=256, compress="deflate")
+    path = raster_writer("big.tif", z, **tiled)
+    data = path.read_bytes()
+    path.write_bytes(data[: int(len(data) * 0.9)])  # the last blocks of the file are gone
+    with pytest.raises(DemError, match="truncated"):
+        open_dem(path)
+    sparse = np.full((1536, 1536), -9999.0, "float32")
+    sparse[700:720, 900:920] = 1.0  # valid data between the sampled windows
+    info = open_dem(raster_writer("sparse.tif", sparse, nodata=-9999.0, **tiled))
+    assert (info.width, info.height) == (1536, 1536)
+    allbad = raster_writer("nodata.tif", np.full((1536, 1536), -9999.0, "float32"), nodata=-9999.0, **tiled)
+    with pytest.raises(DemError, match="no valid elevation"):
+        open_dem(allbad)
+
+
 def test_no_crs_requires_pixel_size_then_body(raster_writer):
     path = raster_writer("nocrs.tif", np.zeros((40, 40), "float32"), crs=None)
     with pytest.raises(CrsError, match="pixel-size"):

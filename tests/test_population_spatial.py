@@ -7,7 +7,7 @@ from scipy import stats
 from scipy.spatial import cKDTree
 
 from morpho.errors import InputError
-from morpho.population.clusters import dbscan_clusters
+from morpho.population.clusters import dbscan_clusters, dbscan_counts
 from morpho.population.csr import simulate_csr
 from morpho.population.nearest_neighbour import (
     clark_evans,
@@ -129,3 +129,31 @@ def test_dbscan_finds_almost_nothing_under_csr():
     rng = np.random.default_rng(10)
     shares = [np.mean(dbscan_clusters(*rng.uniform(0, 1, (2, 400)), 1.0) >= 0) for _ in range(20)]
     assert np.mean(shares) < 0.05
+
+
+@pytest.mark.parametrize("pattern", ["csr", "clustered", "dense", "sparse"])
+def test_dbscan_counts_match_scikit_learn(pattern):
+    # The Monte Carlo envelopes count clusters with a k-d tree and connected components;
+    # scikit-learn's DBSCAN (Ester et al. 1996) is the independent reference for the counts.
+    rng = np.random.default_rng({"csr": 1, "clustered": 2, "dense": 3, "sparse": 4}[pattern])
+    if pattern == "clustered":
+        x, y = _thomas(rng)
+        area = 1.0
+    else:
+        n = {"csr": 400, "dense": 3000, "sparse": 6}[pattern]
+        x, y = rng.uniform(0, 1, (2, n))
+        area = 1.0 if pattern != "dense" else 0.05  # small area: large eps, many core points
+    labels = dbscan_clusters(x, y, area)
+    n_clusters, share = dbscan_counts(x, y, area)
+    assert n_clusters == labels.max() + 1
+    assert share == pytest.approx(np.mean(labels >= 0), abs=1e-12)
+    if pattern == "clustered":
+        assert n_clusters >= 10  # the check is not vacuous
+
+
+def _thomas(rng, parents=20, per=15, sigma=0.01):
+    """Thomas cluster process in the unit square (Diggle 2013, ch. 5; common practice)."""
+    px, py = rng.uniform(0.05, 0.95, (2, parents))
+    x = np.repeat(px, per) + rng.normal(0, sigma, parents * per)
+    y = np.repeat(py, per) + rng.normal(0, sigma, parents * per)
+    return x, y

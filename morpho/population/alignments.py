@@ -12,6 +12,8 @@ chains (catenae)."""
 
 from __future__ import annotations
 
+from itertools import chain
+
 import numpy as np
 import shapely
 from scipy.sparse import coo_matrix
@@ -49,9 +51,9 @@ def _neighbour_edges(xy, diameter_m, min_link_m):
     """Directed (centre, other) links within the size-scaled link length."""
     reach = np.maximum(LINK_FACTOR * diameter_m, min_link_m)
     hits = cKDTree(xy).query_ball_point(xy, reach)
-    counts = np.fromiter((len(h) for h in hits), dtype=np.int64, count=len(xy))
+    counts = np.fromiter(map(len, hits), dtype=np.int64, count=len(xy))
     centre = np.repeat(np.arange(len(xy)), counts)
-    other = np.concatenate([np.asarray(h, dtype=np.int64) for h in hits]) if counts.sum() else centre
+    other = np.fromiter(chain.from_iterable(hits), dtype=np.int64, count=int(counts.sum()))
     dist = np.hypot(*(xy[other] - xy[centre]).T)
     d_c, d_o = diameter_m[centre], diameter_m[other]
     keep = ((other != centre) & (dist <= np.maximum(LINK_FACTOR * 0.5 * (d_c + d_o), min_link_m))

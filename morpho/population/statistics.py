@@ -11,7 +11,7 @@ import shapely
 
 from ..errors import InputError
 from .alignments import ALIGNMENT_REFERENCE, aligned_triplets, extract_chains, longest_chain
-from .clusters import DBSCAN_REFERENCE, dbscan_clusters
+from .clusters import DBSCAN_REFERENCE, dbscan_clusters, dbscan_counts
 from .csr import check_area, check_points, simulate_csr
 from .nearest_neighbour import (
     CLARK_EVANS_REFERENCE,
@@ -107,20 +107,26 @@ def _min_p_combined(observed, simulated) -> float:
     return float(np.mean(combined <= combined[0]))
 
 
-def _spatial_measures(x, y, d, valid_area, radii, min_link):
-    """Statistics recomputed on every CSR simulation, as a dict of scalars."""
+def _spatial_measures(x, y, d, valid_area, radii, min_link, labels=False):
+    """Statistics recomputed on every CSR simulation, as a dict of scalars (and, with
+    ``labels``, the cluster labels of the observed pattern)."""
     area = valid_area.area
     k = ripley_k(x, y, valid_area, radii)
     _, g = pair_correlation(radii, k)
-    labels = dbscan_clusters(x, y, area)
+    if labels:
+        lab = dbscan_clusters(x, y, area)
+        n_clusters, clustered = lab.max() + 1, np.mean(lab >= 0)
+    else:  # simulated patterns: only the counts enter the test
+        lab = None
+        n_clusters, clustered = dbscan_counts(x, y, area)
     tri = aligned_triplets(x, y, d, min_link_m=min_link)
     rim = on_larger_rim(x, y, d)
     return {
         "nn_mean": float(np.mean(nearest_neighbour_distances(x, y))),
         "L": besag_l(k), "g_peak": float(np.nanmax(g)) if np.any(np.isfinite(g)) else np.nan,
-        "n_clusters": float(labels.max() + 1), "clustered": float(np.mean(labels >= 0)),
+        "n_clusters": float(n_clusters), "clustered": float(clustered),
         "triplets": float(len(tri)), "longest_chain": float(longest_chain(x, y, d, tri)), "rim_share": float(np.mean(rim)),
-        "_labels": labels, "_tri": tri,
+        "_labels": lab, "_tri": tri,
     }
 
 
@@ -239,7 +245,7 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         rng = np.random.default_rng(seed)
         radii = default_radii(valid_area, n_points=n)
         min_link = csr_mean_nn_distance(n / area)
-        obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link)
+        obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link, labels=True)
         sims = simulate_csr(valid_area, n, n_simulations, rng=rng)
         sim = [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims]
         l_sim = np.array([s["L"] for s in sim])

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from itertools import chain
+
 import numpy as np
 from scipy.spatial import cKDTree
 
@@ -43,11 +45,11 @@ def on_larger_rim(x_m, y_m, diameter_m, *, tolerance: float = RIM_TOLERANCE) -> 
     r_host = d / 2.0
     # from each host, everything out to the outer edge of its rim band
     hits = cKDTree(xy).query_ball_point(xy, r_host * (1 + tolerance))
-    counts = np.fromiter((len(h) for h in hits), dtype=np.int64, count=x.size)
+    counts = np.fromiter(map(len, hits), dtype=np.int64, count=x.size)
     if counts.sum() == 0:
         return out
     host = np.repeat(np.arange(x.size), counts)
-    guest = np.concatenate([np.asarray(h, dtype=np.int64) for h in hits])
+    guest = np.fromiter(chain.from_iterable(hits), dtype=np.int64, count=int(counts.sum()))
     dist = np.hypot(x[guest] - x[host], y[guest] - y[host])
     ok = (d[host] > d[guest]) & (np.abs(dist - r_host[host]) < tolerance * r_host[host])
     out[guest[ok]] = True
