@@ -75,14 +75,16 @@ def ripley_k(x_m, y_m, valid_area, radii_m) -> np.ndarray:
         return np.full(r.shape, np.nan)
     b = boundary_distance(x, y, valid_area)
     pairs = cKDTree(np.column_stack([x, y])).query_pairs(r[-1], output_type="ndarray")
-    d = np.hypot(x[pairs[:, 0]] - x[pairs[:, 1]], y[pairs[:, 0]] - y[pairs[:, 1]])
-    # each unordered pair counts once per end that serves as centre
-    d2 = np.concatenate([d, d])
-    b_centre = np.concatenate([b[pairs[:, 0]], b[pairs[:, 1]]])
-    # pair contributes at radii r_k with d <= r_k <= b_centre: a +1/-1 difference array
-    lo, hi = _radius_index(r, d2, b_centre)
-    ok = lo < hi
-    diff = (np.bincount(lo[ok], minlength=r.size + 1) - np.bincount(hi[ok], minlength=r.size + 1))
+    i, j = pairs[:, 0], pairs[:, 1]
+    d = np.hypot(x[i] - x[j], y[i] - y[j])
+    # A pair counts once per end that serves as centre, at radii r_k with d <= r_k <= b_centre:
+    # a +1/-1 difference array. Radius indices of the boundary distances are taken per point
+    # and gathered per pair, and the pair's own index once for both ends.
+    lo, hi_pt = _radius_index(r, d, b)
+    diff = np.zeros(r.size + 1, dtype=np.int64)
+    for hi in (hi_pt[i], hi_pt[j]):
+        ok = lo < hi
+        diff += np.bincount(lo[ok], minlength=r.size + 1) - np.bincount(hi[ok], minlength=r.size + 1)
     counts = np.cumsum(diff)[: r.size]
     centres = n - np.searchsorted(np.sort(b), r, side="left")
     with np.errstate(divide="ignore", invalid="ignore"):
