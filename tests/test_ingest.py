@@ -10,7 +10,14 @@ import pytest
 from affine import Affine
 
 from morpho.errors import CrsError, DemError
-from morpho.ingest import ground_pixel_size, open_dem, plan_windows, read_dem, read_tile
+from morpho.ingest import (
+    ground_pixel_size,
+    open_dem,
+    plan_windows,
+    read_dem,
+    read_tile,
+    valid_footprint,
+)
 from morpho.ingest.tiles import TileSpec
 
 from .conftest import MARS_GEOG, MOON_GEOG, MOON_STERE
@@ -219,3 +226,25 @@ def test_real_moon_eqc_is_warped(shared_data):
     # The equirectangular lunar crop's east-west scale changes with latitude (shared/data/README.md).
     info = open_dem(shared_data / "moon_lola_ldem4_farside_eqc.tif")
     assert info.body.name == "moon" and info.needs_warp
+
+
+def test_footprint_strips_equal_gdal_decimation(raster_writer):
+    # The footprint is read in strips to bound GDAL's block cache; GDAL's own nearest-neighbour
+    # decimated read (rasterio out_shape) is the reference it must reproduce exactly.
+    import rasterio
+
+    from morpho.ingest.dem import _decimated
+
+    rng = np.random.default_rng(7)
+    z = rng.normal(size=(1537, 1000)).astype("float32")
+    z[200:900, 300:420] = -9999.0  # a nodata hole
+    path = raster_writer("odd.tif", z, nodata=-9999.0, tiled=True, blockxsize=256, blockysize=256)
+    info = open_dem(path)
+    for out_h, out_w in ((769, 500), (220, 143), (1537, 1000)):
+        got = _decimated(info, out_h, out_w, strip_bytes=64 * 1000 * 4)  # 64-row strips
+        with rasterio.open(path) as src:
+            ref = src.read(1, out_shape=(out_h, out_w), masked=True)
+        assert np.array_equal(np.ma.getmaskarray(got), np.ma.getmaskarray(ref))
+        assert np.array_equal(np.ma.getdata(got), np.ma.getdata(ref))
+    fp = valid_footprint(info, max_size=500)
+    assert 0.9 < fp.area / (1000 * 1537 * 100.0**2 - 700 * 120 * 100.0**2) < 1.1

@@ -577,11 +577,7 @@ def valid_footprint(info: DemInfo, max_size: int = 1024):
     step = max(1, math.ceil(max(info.width, info.height) / max_size))
     out_h = max(1, math.ceil(info.height / step))
     out_w = max(1, math.ceil(info.width / step))
-    try:
-        with rasterio.open(info.path) as src:
-            raw = src.read(info.band, out_shape=(out_h, out_w), masked=True)
-    except (RasterioIOError, OSError, ValueError) as err:
-        raise _fail_open(info.path, err) from err
+    raw = _decimated(info, out_h, out_w)
     data = np.ma.getdata(raw).astype(np.float64) * info.z_scale + info.z_offset
     ok = ~np.ma.getmaskarray(raw) & np.isfinite(data) & (np.abs(data) <= MAX_ABS_ELEVATION_M)
     t = info.transform @ Affine.scale(info.width / out_w, info.height / out_h)
@@ -590,6 +586,35 @@ def valid_footprint(info: DemInfo, max_size: int = 1024):
     if not polys:
         return shapely.geometry.Polygon()
     return shapely.union_all(polys)
+
+
+def _decimated(info: DemInfo, out_h: int, out_w: int, strip_bytes: int = 8 << 20):
+    """Nearest-neighbour decimation of the band, read in strips of whole rows.
+
+    The samples are GDAL's nearest-neighbour ones (source index ``floor((i + 0.5) * n / out)``),
+    so the result equals ``src.read(out_shape=...)``; reading strips through a dataset opened
+    per strip keeps GDAL's block cache, and so memory, to one strip (a whole-raster decimated
+    read caches every decompressed block until the file is closed: +250 MiB at 8192^2).
+    """
+    rows = np.floor((np.arange(out_h) + 0.5) * info.height / out_h).astype(np.int64)
+    cols = np.floor((np.arange(out_w) + 0.5) * info.width / out_w).astype(np.int64)
+    itemsize = np.dtype(info.dtype).itemsize
+    per_strip = max(1, strip_bytes // max(1, info.width * itemsize))
+    parts = []
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", NotGeoreferencedWarning)
+            for r0 in range(0, info.height, per_strip):
+                r1 = min(info.height, r0 + per_strip)
+                sel = rows[(rows >= r0) & (rows < r1)]
+                if sel.size == 0:
+                    continue
+                with rasterio.open(info.path) as src:
+                    strip = src.read(info.band, window=Window(0, r0, info.width, r1 - r0), masked=True)
+                parts.append(strip[sel - r0][:, cols])
+    except (RasterioIOError, OSError, ValueError) as err:
+        raise _fail_open(info.path, err) from err
+    return np.ma.concatenate(parts, axis=0)
 
 
 def sha256_of(path, chunk: int = 1 << 20) -> str:
