@@ -295,37 +295,8 @@ class _ScorerLoader:
         return self._value
 
 
-class _FootprintReader:
-    """The DEM's valid-data footprint, read in a thread while Dask workers run the tiles.
-
-    The footprint decompresses every block of the file (1.2 s at 8192^2); the main process
-    is idle while workers run, so the read overlaps them. Memory stays at one 8 MiB strip
-    (:func:`morpho.ingest.valid_footprint`). In-process tiles read it afterwards: a thread
-    beside them would only compete for the same core.
-    """
-
-    def __init__(self, info: DemInfo, *, background: bool):
-        self._info = info
-        self._future = None
-        if background:
-            from concurrent.futures import ThreadPoolExecutor
-
-            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="morpho-footprint")
-            self._future = self._pool.submit(valid_footprint, info)
-
-    def result(self):
-        """The footprint polygon (re-raises a reading error)."""
-        if self._future is None:
-            return valid_footprint(self._info)
-        try:
-            return self._future.result()
-        finally:
-            self._pool.shutdown(wait=False)
-
-
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params: dict, t_start: float,
-            started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None) -> SurveyResult:
+            started: str, failed: dict, command: str, timing: dict, unmeasured=None) -> SurveyResult:
     t_import = time.perf_counter()
     from ..outputs import run_provenance
     from ..scaling import add_scaling_columns
@@ -334,7 +305,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
     t_finish = time.perf_counter()
     # One-off imports of the finish stage's code are a fixed cost, like the tile code's.
     timing["warmup"] = timing.get("warmup", 0.0) + (t_finish - t_import)
-    footprint_src = valid_footprint(info) if footprint is None else footprint
+    footprint_src = valid_footprint(info)
     fitted, model_path = model
     envelope = None
     if len(df):
@@ -483,7 +454,6 @@ def survey(
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
     waited_before = loader.waited
-    footprint = _FootprintReader(info, background=uses_dask(len(specs), workers, scheduler))
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
                     run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
                     before_first=loader.check, warm_modules=TILE_MODULES)
@@ -504,12 +474,11 @@ def survey(
         "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
         "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
     }
-    footprint_src = footprint.result()  # already read beside Dask tiles; else read now (merge time)
     merge = time.perf_counter() - t_merge
     scorer = loader.result()
     timing.update(_run_timing(run, loader, waited_in_tiles), merge=merge)
     return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
-                   failed=run.failed, command="survey", timing=timing, footprint=footprint_src)
+                   failed=run.failed, command="survey", timing=timing)
 
 
 def measure(
