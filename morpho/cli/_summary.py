@@ -33,9 +33,9 @@ def seconds_since_process_start() -> float | None:
 def stage_seconds(result, *, startup: float | None = None, write: float | None = None) -> dict:
     """Seconds per stage of a command: the survey's ``timing_s`` plus start-up and writing.
 
-    Keys: ``start-up`` (Python, imports, option parsing), ``model wait`` (time the survey
-    waited for its scoring model, which loads beside the tiles), ``cluster`` (starting and
-    closing Dask workers), ``warm-up`` (importing the tile and finish-stage code in this process), then the
+    Keys: ``start-up`` (Python, imports, option parsing), ``model wait`` (loading the scoring
+    model: before in-process tiles, after Dask tiles), ``cluster`` (starting and closing Dask
+    workers), ``warm-up`` (importing the tile and finish-stage code in this process), then the
     area-dependent stages of :data:`AREA_STAGES`.
     """
     run = result.run if isinstance(result.run, dict) else {}

@@ -6,9 +6,9 @@ run folder (``<output>.morpho-run/``) at once, so an interrupted survey resumes
 by redoing only the missing tiles. A tile that raises is retried once, then
 recorded as failed while the others complete.
 
-``before_first`` lets the caller finish work it started in the background (the survey
-loads its scoring model while the first tiles run) before any tile result is kept: if
-that work fails, the run stops with nothing written to the run folder.
+``before_first`` lets the caller finish work it started in the background before any
+tile result is kept: if that work fails, the run stops with nothing written to the run
+folder.
 """
 
 from __future__ import annotations

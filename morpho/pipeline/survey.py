@@ -259,8 +259,8 @@ class _ScorerLoader:
     loading it beside them put ~124 MB (scikit-learn, skops, the model) in the main process
     during the workers' memory peak, which took an 8192^2 survey over 2 GiB. A user's model
     file gets cheap checks up front (:func:`_precheck_model`), so a missing or broken file
-    still stops the survey before any tile runs. ``waited`` is the time the caller spent
-    blocked on loading; ``seconds`` the loading itself.
+    still stops the survey before any tile runs. ``seconds`` is the time spent loading (the
+    survey waits for all of it).
     """
 
     def __init__(self, model, *, defer: bool):
@@ -268,14 +268,10 @@ class _ScorerLoader:
         self._value = None
         self._error: BaseException | None = None
         self.seconds = 0.0
-        self.waited = 0.0
         if defer:
             _precheck_model(model)
         else:
             self.result()  # a bad model file fails here, before any tile runs
-
-    def check(self):
-        """Nothing to wait for: the engine's ``before_first`` hook (checks ran at construction)."""
 
     def _load(self):
         t0 = time.perf_counter()
@@ -284,7 +280,6 @@ class _ScorerLoader:
         except BaseException as err:  # noqa: BLE001 - re-raised by result()
             self._error = err
         self.seconds = time.perf_counter() - t0
-        self.waited += self.seconds
 
     def result(self):
         """The loaded ``(model, model_path)``, loading it on first call; re-raises a loading error."""
@@ -355,14 +350,14 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
     return SurveyResult(craters, population, chains, footprint, run, failed, unmeasured, envelope)
 
 
-def _run_timing(run, loader: _ScorerLoader, waited_in_tiles: float) -> dict:
+def _run_timing(run, loader: _ScorerLoader) -> dict:
     """Stage times around the tiles: fixed costs (cluster, waiting for the model) apart from tile work."""
     return {
         "model_load": loader.seconds,  # before in-process tiles, after Dask tiles
-        "model_wait": loader.waited,
+        "model_wait": loader.seconds,  # never hidden behind the tiles (see _ScorerLoader)
         "cluster": run.cluster_seconds,
         "warmup": run.warmup_seconds,
-        "tiles": run.seconds - run.cluster_seconds - run.warmup_seconds - waited_in_tiles,
+        "tiles": run.seconds - run.cluster_seconds - run.warmup_seconds,
     }
 
 
@@ -453,12 +448,11 @@ def survey(
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
-    waited_before = loader.waited
     run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
                     run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
-                    before_first=loader.check, warm_modules=TILE_MODULES)
+                    warm_modules=TILE_MODULES)
     log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
-    t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
+    t_merge = time.perf_counter()
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(df):
@@ -476,7 +470,7 @@ def survey(
     }
     merge = time.perf_counter() - t_merge
     scorer = loader.result()
-    timing.update(_run_timing(run, loader, waited_in_tiles), merge=merge)
+    timing.update(_run_timing(run, loader), merge=merge)
     return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
                    failed=run.failed, command="survey", timing=timing)
 
@@ -541,11 +535,10 @@ def measure(
     unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
                   for c in craters.loc[~inside, "crater_id"]]
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
-    waited_before = loader.waited
     run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                    workers=workers, scheduler=scheduler, progress=progress, before_first=loader.check,
+                    workers=workers, scheduler=scheduler, progress=progress,
                     warm_modules=TILE_MODULES)
-    t_merge, waited_in_tiles = time.perf_counter(), loader.waited - waited_before
+    t_merge = time.perf_counter()
     frames = [f for f in run.results if len(f)]
     df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(df) and "measure_status" in df:
@@ -563,7 +556,7 @@ def measure(
     }
     merge = time.perf_counter() - t_merge
     scorer = loader.result()
-    timing.update(_run_timing(run, loader, waited_in_tiles), merge=merge)
+    timing.update(_run_timing(run, loader), merge=merge)
     return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
                    failed=run.failed, command="measure", timing=timing,
                    unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]))
