@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -135,3 +139,44 @@ def test_warm_modules_are_imported_before_any_tile_runs(tmp_path):
     assert calls == []
     run = run_tiles(tile, 7, SPECS, warm_modules=("morpho.shapes",), progress=False)
     assert len(run.results) == len(SPECS) and run.warmup_seconds >= 0
+
+
+_REUSE_SCRIPT = """
+import resource, sys
+import numpy as np
+from morpho._runtime import retain_freed_memory
+if sys.argv[1] == "retain":
+    assert retain_freed_memory()
+a = np.ones(64 << 17)  # 64 MiB, above glibc's largest adaptive mmap threshold (32 MiB)
+del a
+before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+b = np.ones(64 << 17)
+print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc malloc tunables (Linux only)")
+def test_retained_memory_is_reused_without_new_page_faults():
+    # mallopt(3), glibc manual "Memory Allocation Tunables": with both thresholds above the
+    # allocation size a freed block stays in the heap, so the next one touches no new pages;
+    # with the defaults a 64 MiB block is mapped afresh (>= 64 MiB / 2 MiB huge pages faults).
+    def faults(mode):
+        out = subprocess.run([sys.executable, "-c", _REUSE_SCRIPT, mode], capture_output=True,
+                             text=True, check=True)
+        return int(out.stdout.strip())
+
+    assert faults("default") >= 32
+    assert faults("retain") < 8
+
+
+def env_tile(name, spec):
+    """A tile that reports an environment variable of the process it ran in."""
+    return pd.DataFrame({"tile": [spec.key], "value": [os.environ.get(name, "")], "pid": [os.getpid()]})
+
+
+@pytest.mark.slow
+def test_local_workers_start_with_the_retaining_malloc_settings():
+    run = run_tiles(env_tile, "MALLOC_MMAP_THRESHOLD_", SPECS[:4], workers=2, progress=False)
+    df = pd.concat(run.results, ignore_index=True)
+    assert set(df["value"]) == {str(1 << 30)}
+    assert os.getpid() not in set(df["pid"])  # really ran in worker processes

@@ -14,6 +14,7 @@ import sys  # noqa: E402
 import click  # noqa: E402
 
 from .. import __version__  # noqa: E402
+from .._runtime import retain_freed_memory  # noqa: E402
 from ..errors import MorphoError  # noqa: E402
 
 __all__ = ["cli", "main"]
@@ -82,6 +83,8 @@ def cli(ctx, verbose, quiet):
                         format="%(levelname)s %(name)s: %(message)s", stream=sys.stderr)
     logging.getLogger("morpho").setLevel(level)
 
+    # Tiles, synthetic surfaces and training reuse freed memory instead of faulting in new pages.
+    retain_freed_memory()
     ctx.ensure_object(dict)
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet

@@ -91,7 +91,7 @@ def prepare_surface(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     Returns
     -------
-    filled : ndarray, shape (H, W)
+    filled : ndarray of float32, shape (H, W)
         Detrended elevation with no NaN.
     valid : ndarray of bool, shape (H, W)
         True where ``z`` was finite.
@@ -105,30 +105,51 @@ def prepare_surface(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     ok = np.isfinite(sub)
     design = np.column_stack([np.ones(ok.sum()), yy[ok], xx[ok]])
     coef = np.linalg.lstsq(design, sub[ok], rcond=None)[0]
-    # Broadcast rows and columns: no full-size index grids.
-    detr = z - (coef[0] + coef[1] * np.arange(h)[:, None] + coef[2] * np.arange(w)[None, :])
+    # Single precision, like every map computed from it (see _level_response); the plane is
+    # removed by broadcasting rows and columns into one output array (no full-size temporaries).
+    detr = np.empty((h, w), dtype=np.float32)
+    np.subtract(z, (coef[0] + coef[1] * np.arange(h))[:, None], out=detr, casting="same_kind")
+    detr -= (coef[2] * np.arange(w)).astype(np.float32)[None, :]
     if not valid.all():
         idx = ndimage.distance_transform_edt(~valid, return_distances=False, return_indices=True)
         detr = detr[tuple(idx)]
     return detr, valid
 
 
-def _smooth_coarse(a: np.ndarray, sigma: float) -> np.ndarray:
-    """Gaussian blur with a wide ``sigma`` computed on a subsampled grid and interpolated back."""
-    step = max(1, int(sigma / 4.0))
+def _coarse_step(sigma: float) -> int:
+    """Subsampling step for a Gaussian of width ``sigma`` (4 samples per sigma at least)."""
+    return max(1, int(sigma / 4.0))
+
+
+def _upsample_weights(n: int, n_coarse: int, step: int) -> np.ndarray:
+    """Linear interpolation from ``n_coarse`` samples at ``i * step`` to ``n`` pixels, (n, n_coarse)."""
+    pos = np.minimum(np.arange(n, dtype=np.float64) / step, n_coarse - 1)
+    i0 = pos.astype(np.intp)
+    i1 = np.minimum(i0 + 1, n_coarse - 1)
+    frac = pos - i0
+    wts = np.zeros((n, n_coarse), dtype=np.float32)
+    rows = np.arange(n)
+    np.add.at(wts, (rows, i0), 1.0 - frac)
+    np.add.at(wts, (rows, i1), frac)
+    return wts
+
+
+def _smooth_coarse(sub: np.ndarray, sigma: float, shape: tuple[int, int]) -> np.ndarray:
+    """Gaussian blur with a wide ``sigma`` computed on a subsampled grid and interpolated back.
+
+    ``sub`` is the full-resolution map sampled every ``_coarse_step(sigma)`` pixels (the
+    caller subsamples before squaring or masking, so no full-size temporary is made). Bilinear
+    interpolation back to ``shape`` is separable, so it is two small matrix products with
+    interpolation weights: one BLAS call writes the full-size result.
+    """
+    step = _coarse_step(sigma)
+    coarse = ndimage.gaussian_filter(sub.astype(np.float32, copy=False), sigma / step, truncate=3.0)
     if step == 1:
-        return ndimage.gaussian_filter(a, sigma, truncate=3.0)
-    h, w = a.shape
-    coarse = ndimage.gaussian_filter(a[::step, ::step], sigma / step, truncate=3.0)
+        return coarse
+    h, w = shape
     # Coarse sample i sits at full-resolution index i * step.
-    rr = np.minimum(np.arange(h, dtype=np.float32) / step, coarse.shape[0] - 1)
-    cc = np.minimum(np.arange(w, dtype=np.float32) / step, coarse.shape[1] - 1)
-    r0, c0 = rr.astype(np.intp), cc.astype(np.intp)
-    r1, c1 = np.minimum(r0 + 1, coarse.shape[0] - 1), np.minimum(c0 + 1, coarse.shape[1] - 1)
-    fr, fc = (rr - r0)[:, None], (cc - c0)[None, :]
-    top = coarse[r0][:, c0] * (1 - fc) + coarse[r0][:, c1] * fc
-    bot = coarse[r1][:, c0] * (1 - fc) + coarse[r1][:, c1] * fc
-    return top * (1 - fr) + bot * fr
+    rows_up = _upsample_weights(h, coarse.shape[0], step) @ coarse
+    return rows_up @ _upsample_weights(w, coarse.shape[1], step).T
 
 
 def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
@@ -137,36 +158,46 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
     Computed in float32: the response is a ratio of smoothed quantities, and single precision
     halves the memory traffic of the Gaussian passes.
     """
-    sm = ndimage.gaussian_filter(level.astype(np.float32), 1.0)
+    sm = ndimage.gaussian_filter(level.astype(np.float32, copy=False), 1.0)
     gy, gx = np.gradient(sm)
     mag = np.hypot(gx, gy)
     all_valid = bool(valid.all())
-    vf = valid.astype(np.float32)
     s_rms = 2.0 * float(radii[-1])
+    st = _coarse_step(s_rms)
     if all_valid:
-        rms = np.sqrt(np.maximum(_smooth_coarse(mag * mag, s_rms), 0.0))
+        rms = _smooth_coarse(mag[::st, ::st] ** 2, s_rms, level.shape)
+        np.maximum(rms, 0.0, out=rms)
+        np.sqrt(rms, out=rms)
     else:
-        num = _smooth_coarse(mag * mag * vf, s_rms)
-        den = _smooth_coarse(vf, s_rms)
+        vsub = valid[::st, ::st].astype(np.float32)
+        num = _smooth_coarse(mag[::st, ::st] ** 2 * vsub, s_rms, level.shape)
+        den = _smooth_coarse(vsub, s_rms, level.shape)
         with np.errstate(divide="ignore", invalid="ignore"):
             rms = np.sqrt(np.maximum(num, 0.0) / np.maximum(den, 1e-6))
+        del num, den
     floor = np.float32(1e-6 * (float(np.nanmax(rms)) + 1e-30))
     # Unit direction where the gradient is at least the local RMS; weaker gradients (noise on a
     # smooth floor) are damped in proportion, so they cannot vote as strongly as crater walls.
-    norm = np.maximum(mag, np.maximum(rms, floor))
-    ux = gx / norm
-    uy = gy / norm
-    del gx, gy, mag, rms, norm  # full-resolution temporaries: free before the scale loop
+    # In place: ``rms`` becomes the norm and ``gx, gy`` the damped unit vectors.
+    norm = np.maximum(rms, floor, out=rms)
+    np.maximum(mag, norm, out=norm)
+    del mag
+    ux = np.divide(gx, norm, out=gx)
+    uy = np.divide(gy, norm, out=gy)
+    del norm
     if not all_valid:
-        ux *= vf
-        uy *= vf
-    div = np.gradient(ux, axis=1) + np.gradient(uy, axis=0)
-    del ux, uy
+        ux *= valid
+        uy *= valid
+    div = np.gradient(ux, axis=1)
+    div += np.gradient(uy, axis=0)
+    del ux, uy, gx, gy
 
     sig = radii / _C
     out = np.empty((radii.size,) + level.shape, dtype=np.float32)
     # 2.5 sigma keeps 98.8 % of each Gaussian's weight; the DoG only needs its shape.
     prev = ndimage.gaussian_filter(div, sig[0], truncate=2.5)
+    del div
+    vf = None if all_valid else valid.astype(np.float32)
     s_prev = sig[0]
     for j, s in enumerate(sig):
         s2 = s * _K
@@ -189,12 +220,20 @@ def _scale_space_maxima(resp: np.ndarray, threshold: float):
     A 2-D maximum filter per scale, then a comparison with the filtered neighbours in scale:
     the same set as a 3-D maximum filter, with one separable pass fewer.
     """
-    flat = [ndimage.maximum_filter(layer, size=3, mode="nearest") for layer in resp]
-    last = len(flat) - 1
+    last = len(resp) - 1
+    flat = {}
+
+    def flat_at(k):
+        if k not in flat:
+            flat[k] = ndimage.maximum_filter(resp[k], size=3, mode="nearest")
+        return flat[k]
+
     found = []
-    # Layer by layer (no stacked up/down copies): peak memory stays a few layers, not 4 x resp.
+    # Layer by layer, keeping only the three filtered layers in use: peak memory stays a few
+    # layers, not 2 x resp.
     for j, layer in enumerate(resp):
-        is_max = (layer >= flat[j]) & (layer >= flat[min(j + 1, last)]) & (layer >= flat[max(j - 1, 0)])
+        flat.pop(j - 2, None)
+        is_max = (layer >= flat_at(j)) & (layer >= flat_at(min(j + 1, last))) & (layer >= flat_at(max(j - 1, 0)))
         is_max &= layer > threshold
         rr, cc = np.nonzero(is_max)
         found.append((np.full(rr.size, j, dtype=np.intp), rr, cc))

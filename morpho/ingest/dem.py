@@ -470,10 +470,18 @@ def _read_window(info: DemInfo, spec: TileSpec) -> np.ndarray:
                 raw = src.read(info.band, window=window, masked=True)
     except (RasterioIOError, OSError, ValueError) as err:
         raise _fail_open(info.path, err) from err
-    data = np.ma.getdata(raw).astype(np.float64)
-    mask = np.ma.getmaskarray(raw) | ~np.isfinite(data)
-    z = data * info.z_scale + info.z_offset
-    mask |= np.abs(z) > MAX_ABS_ELEVATION_M
+    # In place after one conversion to float64: a tile makes no other full-size temporaries here.
+    z = np.ma.getdata(raw).astype(np.float64)
+    mask = np.ma.getmaskarray(raw)
+    del raw
+    if info.z_scale != 1.0:
+        z *= info.z_scale
+    if info.z_offset != 0.0:
+        z += info.z_offset
+    mask |= ~np.isfinite(z)
+    with np.errstate(invalid="ignore"):
+        mask |= z > MAX_ABS_ELEVATION_M
+        mask |= z < -MAX_ABS_ELEVATION_M
     z[mask] = np.nan
     return z
 
