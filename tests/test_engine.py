@@ -180,3 +180,20 @@ def test_local_workers_start_with_the_retaining_malloc_settings():
     df = pd.concat(run.results, ignore_index=True)
     assert set(df["value"]) == {str(1 << 30)}
     assert os.getpid() not in set(df["pid"])  # really ran in worker processes
+
+
+def _footprint_like(value):
+    return {"area": value * 2}
+
+
+@pytest.mark.slow
+def test_side_tasks_run_on_dask_workers_and_are_left_to_the_caller_serially():
+    side = {"fp": (_footprint_like, (21,))}
+    dask_run = run_tiles(toy_tile, 7, SPECS, workers=2, progress=False, side_tasks=side)
+    assert dask_run.side == {"fp": {"area": 42}}
+    assert _table(dask_run).equals(_table(run_tiles(toy_tile, 7, SPECS, progress=False)))
+    serial = run_tiles(toy_tile, 7, SPECS, progress=False, side_tasks=side)
+    assert serial.side == {}  # the caller computes it itself
+    failing = run_tiles(toy_tile, 7, SPECS, workers=2, progress=False,
+                        side_tasks={"fp": (_footprint_like, (None,))})
+    assert failing.side == {} and not failing.failed and len(failing.results) == len(SPECS)

@@ -74,11 +74,28 @@ def test_tiled_survey_finds_border_craters_once(serial, crater_dem):
 
 
 @pytest.mark.slow
-def test_local_cluster_and_remote_scheduler_match_serial(serial, crater_dem):
+def test_local_cluster_and_remote_scheduler_match_serial(serial, crater_dem, tmp_path, monkeypatch):
     from dask.distributed import LocalCluster
 
-    local = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2)
+    from morpho.ingest import valid_footprint
+
+    survey_module = sys.modules["morpho.pipeline.survey"]  # the package exports a function of that name
+    log = tmp_path / "footprint_pids.txt"
+
+    def logged(info):  # sent to the workers by value; notes which process ran it
+        with open(log, "a") as fh:
+            fh.write(f"{os.getpid()}\n")
+        return valid_footprint(info)
+
+    with monkeypatch.context() as patch:
+        patch.setattr(survey_module, "valid_footprint", logged)
+        local = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2)
+    pids = log.read_text().split()
+    assert len(pids) == 1 and int(pids[0]) != os.getpid()  # once, on a worker
     pd.testing.assert_frame_equal(_key(local.craters), _key(serial.craters))
+    # The valid-data footprint comes from a worker here and from this process serially.
+    assert local.footprint.geometry.iloc[0].equals_exact(serial.footprint.geometry.iloc[0], 0.0)
+    pd.testing.assert_frame_equal(local.population, serial.population)
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                       dashboard_address=None) as cluster:
         remote = survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2,

@@ -17,7 +17,7 @@ import importlib
 import logging
 import os
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -51,6 +51,8 @@ class TileRun:
         ``warm_modules`` (a fixed cost; 0 when serial).
     warmup_seconds : float
         Importing ``warm_modules`` in this process before in-process tiles (a fixed cost).
+    side : dict
+        Results of ``side_tasks`` that ran on Dask workers (name -> value).
     """
 
     results: list = field(default_factory=list)
@@ -59,6 +61,7 @@ class TileRun:
     reused: int = 0
     cluster_seconds: float = 0.0
     warmup_seconds: float = 0.0
+    side: dict = field(default_factory=dict)
 
 
 def _cache_path(run_dir: Path, spec: TileSpec) -> Path:
@@ -86,6 +89,7 @@ def run_tiles(
     progress: bool = True,
     before_first: Callable[[], None] | None = None,
     warm_modules: Sequence[str] = (),
+    side_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
 ) -> TileRun:
     """Run ``func(first_arg, spec, *extra_args)`` for every tile.
 
@@ -114,6 +118,11 @@ def run_tiles(
     warm_modules : sequence of str
         Modules the tile function imports lazily; imported before the first tile (on every
         worker when on Dask) so that their one-off import time is not counted as tile work.
+    side_tasks : mapping, optional
+        ``name -> (func, args)``: independent work the caller needs after the tiles. On Dask it
+        is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
+        time the last tiles leave a core idle); its value goes to ``TileRun.side[name]``.
+        Serially, or if it fails on a worker, it is left out and the caller computes it itself.
 
     Returns
     -------
@@ -162,7 +171,7 @@ def run_tiles(
             _record(spec, df=df)
     elif todo:
         run.cluster_seconds = _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, _record,
-                                        tuple(warm_modules))
+                                        tuple(warm_modules), dict(side_tasks or {}), run.side)
     bar.close()
     run.results = [done[s.index] for s in specs if s.index in done]
     run.seconds = time.perf_counter() - t0
@@ -189,7 +198,8 @@ def _run_one(func, first_arg, spec, extra_args):
         return func(first_arg, spec, *extra_args)
 
 
-def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record, warm_modules=()) -> float:
+def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record, warm_modules=(),
+              side_tasks=None, side=None) -> float:
     """Run the tiles on Dask; returns the seconds spent starting and closing the client/cluster."""
     t0 = time.perf_counter()
     import dask
@@ -215,11 +225,21 @@ def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record, w
     setup = time.perf_counter() - t0
     try:
         futures = {}
-        for spec in todo:
+        # Largest windows first (edge tiles are smaller): the last tasks, which can leave a core
+        # idle, are then the shortest. Results are put back in tile order by the caller.
+        for spec in sorted(todo, key=lambda t: -t.height * t.width):
             fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
                                 key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
             futures[fut] = spec
-        for fut in as_completed(futures):
+        extra = {client.submit(f, *args, pure=False, key=f"morpho-{name}-{time.monotonic_ns()}"): name
+                 for name, (f, args) in (side_tasks or {}).items()}
+        for fut in as_completed(list(futures) + list(extra)):
+            if fut in extra:
+                try:
+                    side[extra[fut]] = fut.result()
+                except Exception as err:  # noqa: BLE001 - the caller computes it itself
+                    log.debug("side task %s failed on a worker: %s", extra[fut], err)
+                continue
             spec = futures[fut]
             try:
                 df = fut.result()
