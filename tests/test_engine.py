@@ -176,10 +176,11 @@ def env_tile(name, spec):
 
 @pytest.mark.slow
 def test_local_workers_start_with_the_retaining_malloc_settings():
-    run = run_tiles(env_tile, "MALLOC_MMAP_THRESHOLD_", SPECS[:4], workers=2, progress=False)
-    df = pd.concat(run.results, ignore_index=True)
-    assert set(df["value"]) == {str(1 << 30)}
-    assert os.getpid() not in set(df["pid"])  # really ran in worker processes
+    for name, value in [("MALLOC_MMAP_THRESHOLD_", str(1 << 30)), ("NUMPY_MADVISE_HUGEPAGE", "0")]:
+        run = run_tiles(env_tile, name, SPECS[:4], workers=2, progress=False)
+        df = pd.concat(run.results, ignore_index=True)
+        assert set(df["value"]) == {value}
+        assert os.getpid() not in set(df["pid"])  # really ran in worker processes
 
 
 def _footprint_like(value):
@@ -197,3 +198,22 @@ def test_side_tasks_run_on_dask_workers_and_are_left_to_the_caller_serially():
     failing = run_tiles(toy_tile, 7, SPECS, workers=2, progress=False,
                         side_tasks={"fp": (_footprint_like, (None,))})
     assert failing.side == {} and not failing.failed and len(failing.results) == len(SPECS)
+
+
+def _pid_plus(k):
+    return os.getpid() + k
+
+
+@pytest.mark.slow
+def test_pool_runs_later_tasks_on_its_workers_and_serially_here():
+    from morpho.pipeline import TilePool
+
+    with TilePool(workers=2) as pool:
+        run = run_tiles(toy_tile, 7, SPECS, pool=pool, progress=False)
+        assert pool.client is not None  # still open after the tiles
+        assert pool.submit(_pid_plus, 0).result() != os.getpid()
+    assert pool.client is None and pool.seconds >= run.cluster_seconds > 0
+    with TilePool(workers=1) as serial:
+        run_tiles(toy_tile, 7, SPECS, pool=serial, progress=False)
+        handle = serial.submit(_pid_plus, 1)
+        assert serial.client is None and handle.result() == os.getpid() + 1

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
-from .._runtime import pin_numeric_threads
+from .._runtime import pin_numeric_threads, retain_freed_memory
 
-# Before anything imports numpy: compute like a Dask worker (see morpho._runtime).
+# Before anything imports numpy: compute like a Dask worker, and reuse memory between tiles
+# (see morpho._runtime).
 pin_numeric_threads()
+retain_freed_memory()
 
 import importlib  # noqa: E402
 import logging  # noqa: E402
@@ -14,7 +16,6 @@ import sys  # noqa: E402
 import click  # noqa: E402
 
 from .. import __version__  # noqa: E402
-from .._runtime import retain_freed_memory  # noqa: E402
 from ..errors import MorphoError  # noqa: E402
 
 __all__ = ["cli", "main"]
@@ -83,8 +84,6 @@ def cli(ctx, verbose, quiet):
                         format="%(levelname)s %(name)s: %(message)s", stream=sys.stderr)
     logging.getLogger("morpho").setLevel(level)
 
-    # Tiles, synthetic surfaces and training reuse freed memory instead of faulting in new pages.
-    retain_freed_memory()
     ctx.ensure_object(dict)
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet

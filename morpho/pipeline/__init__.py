@@ -1,6 +1,6 @@
 """The survey engine: tiles -> detection/measurement -> merge -> scaling, scoring, population."""
 
-from .engine import TileRun, run_tiles
+from .engine import TilePool, TileRun, run_tiles
 from .survey import SurveyResult, measure, survey
 
-__all__ = ["SurveyResult", "TileRun", "measure", "run_tiles", "survey"]
+__all__ = ["SurveyResult", "TilePool", "TileRun", "measure", "run_tiles", "survey"]

@@ -27,7 +27,7 @@ from tqdm.auto import tqdm
 from .._runtime import WORKER_ENVIRON
 from ..ingest import TileSpec
 
-__all__ = ["TileRun", "run_tiles", "uses_dask"]
+__all__ = ["TilePool", "TileRun", "run_tiles", "uses_dask"]
 
 log = logging.getLogger(__name__)
 
@@ -47,7 +47,7 @@ class TileRun:
     reused : int
         Tiles taken from the run folder (``resume``).
     cluster_seconds : float
-        Starting and closing the Dask client and local cluster, with the workers' imports of
+        Starting (and, unless the pool stays open, closing) the Dask client and local cluster, with the workers' imports of
         ``warm_modules`` (a fixed cost; 0 when serial).
     warmup_seconds : float
         Importing ``warm_modules`` in this process before in-process tiles (a fixed cost).
@@ -90,6 +90,7 @@ def run_tiles(
     before_first: Callable[[], None] | None = None,
     warm_modules: Sequence[str] = (),
     side_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
+    pool: TilePool | None = None,
 ) -> TileRun:
     """Run ``func(first_arg, spec, *extra_args)`` for every tile.
 
@@ -123,6 +124,10 @@ def run_tiles(
         is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
         time the last tiles leave a core idle); its value goes to ``TileRun.side[name]``.
         Serially, or if it fails on a worker, it is left out and the caller computes it itself.
+    pool : TilePool, optional
+        An open pool to run on, which stays open afterwards for :meth:`TilePool.submit` (its
+        ``workers``, ``scheduler`` and ``warm_modules`` apply; those given here are ignored).
+        By default a pool is opened for the tiles and closed after them.
 
     Returns
     -------
@@ -139,7 +144,6 @@ def run_tiles(
             run.reused += 1
         else:
             todo.append(spec)
-    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
     bar = tqdm(total=len(specs), initial=run.reused, unit="tile", desc="tiles", disable=not progress,
                leave=False)
 
@@ -158,20 +162,28 @@ def run_tiles(
                 _save(run_dir, spec, df)
         bar.update(1)
 
-    if todo and not uses_dask(len(todo), workers, scheduler):
-        t_warm = time.perf_counter()
-        _import_all(warm_modules)
-        run.warmup_seconds = time.perf_counter() - t_warm
-        for spec in todo:
-            try:
-                df = _run_one(func, first_arg, spec, extra_args)
-            except Exception as err:  # noqa: BLE001
-                _record(spec, err=err)
-                continue
-            _record(spec, df=df)
-    elif todo:
-        run.cluster_seconds = _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, _record,
-                                        tuple(warm_modules), dict(side_tasks or {}), run.side)
+    own = pool is None
+    if own:
+        pool = TilePool(workers=workers, scheduler=scheduler, warm_modules=warm_modules)
+    try:
+        if todo and not pool.would_use_dask(len(todo)):
+            t_warm = time.perf_counter()
+            _import_all(pool.warm_modules)
+            run.warmup_seconds = time.perf_counter() - t_warm
+            for spec in todo:
+                try:
+                    df = _run_one(func, first_arg, spec, extra_args)
+                except Exception as err:  # noqa: BLE001
+                    _record(spec, err=err)
+                    continue
+                _record(spec, df=df)
+        elif todo:
+            pool.start()
+            _run_dask(pool.client, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side)
+    finally:
+        if own:
+            pool.close()
+        run.cluster_seconds = pool.seconds
     bar.close()
     run.results = [done[s.index] for s in specs if s.index in done]
     run.seconds = time.perf_counter() - t0
@@ -198,59 +210,140 @@ def _run_one(func, first_arg, spec, extra_args):
         return func(first_arg, spec, *extra_args)
 
 
-def _run_dask(func, first_arg, todo, extra_args, n_workers, scheduler, record, warm_modules=(),
-              side_tasks=None, side=None) -> float:
-    """Run the tiles on Dask; returns the seconds spent starting and closing the client/cluster."""
-    t0 = time.perf_counter()
-    import dask
-    from dask.distributed import Client, LocalCluster, as_completed
+class TilePool:
+    """Where tiles and later tasks run: this process, a local Dask cluster, or a given scheduler.
 
-    # distributed sets its loggers to INFO when imported; keep them quiet unless morpho is at DEBUG.
-    if not log.isEnabledFor(logging.DEBUG):
-        for name in ("distributed", "dask"):
-            logging.getLogger(name).setLevel(logging.WARNING)
-    cluster = None
-    if scheduler is None:
-        # Dask's nanny sets MALLOC_TRIM_THRESHOLD_ low so workers give memory back; our workers
-        # instead keep freed pages for the next tile (see ``morpho._runtime``: tiles ~2x faster).
-        environ = {f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in WORKER_ENVIRON.items()}
-        with dask.config.set(environ):
-            cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                                   dashboard_address=None)
-        client = Client(cluster)
-    else:
-        client = Client(scheduler)
-    if warm_modules:
-        client.run(_import_all, warm_modules)
-    setup = time.perf_counter() - t0
-    try:
-        futures = {}
-        # Largest windows first (edge tiles are smaller): the last tasks, which can leave a core
-        # idle, are then the shortest. Results are put back in tile order by the caller.
-        for spec in sorted(todo, key=lambda t: -t.height * t.width):
-            fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
-                                key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
-            futures[fut] = spec
-        extra = {client.submit(f, *args, pure=False, key=f"morpho-{name}-{time.monotonic_ns()}"): name
-                 for name, (f, args) in (side_tasks or {}).items()}
-        for fut in as_completed(list(futures) + list(extra)):
-            if fut in extra:
-                try:
-                    side[extra[fut]] = fut.result()
-                except Exception as err:  # noqa: BLE001 - the caller computes it itself
-                    log.debug("side task %s failed on a worker: %s", extra[fut], err)
-                continue
-            spec = futures[fut]
+    The cluster starts when the first tiles need it (:meth:`start`) and stays up until
+    :meth:`close`, so that work after the tiles can use the workers too (:meth:`submit`).
+    Use it as a context manager.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Local worker processes (``None`` = all cores); 1 runs everything in this process.
+    scheduler : str, optional
+        Address of an existing dask.distributed scheduler.
+    warm_modules : sequence of str
+        Imported on every worker when the cluster starts (see :func:`run_tiles`).
+
+    Attributes
+    ----------
+    seconds : float
+        Time spent starting and closing the client/cluster so far (0 when serial).
+    """
+
+    def __init__(self, *, workers: int | None = 1, scheduler: str | None = None, warm_modules: Sequence[str] = ()):
+        self.n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+        self.workers = workers
+        self.scheduler = scheduler
+        self.warm_modules = tuple(warm_modules)
+        self.client = None
+        self._cluster = None
+        self.seconds = 0.0
+
+    def __enter__(self) -> TilePool:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def would_use_dask(self, n_tiles: int) -> bool:
+        """Whether ``n_tiles`` tiles go to Dask (see :func:`uses_dask`)."""
+        return self.client is not None or uses_dask(n_tiles, self.workers, self.scheduler)
+
+    def start(self) -> None:
+        """Start the local cluster (or connect to the scheduler) if not yet done."""
+        if self.client is not None:
+            return
+        t0 = time.perf_counter()
+        import dask
+        from dask.distributed import Client, LocalCluster
+
+        # distributed sets its loggers to INFO when imported; keep them quiet unless morpho is at DEBUG.
+        if not log.isEnabledFor(logging.DEBUG):
+            for name in ("distributed", "dask"):
+                logging.getLogger(name).setLevel(logging.WARNING)
+        if self.scheduler is None:
+            # Dask's nanny sets MALLOC_TRIM_THRESHOLD_ low so workers give memory back; our workers
+            # instead keep freed pages for the next tile (see ``morpho._runtime``: tiles ~2x faster).
+            environ = {f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in WORKER_ENVIRON.items()}
+            with dask.config.set(environ):
+                self._cluster = LocalCluster(n_workers=self.n_workers, threads_per_worker=1, processes=True,
+                                             dashboard_address=None)
+            self.client = Client(self._cluster)
+        else:
+            self.client = Client(self.scheduler)
+        try:
+            if self.warm_modules:
+                self.client.run(_import_all, self.warm_modules)
+        finally:
+            self.seconds += time.perf_counter() - t0
+
+    def submit(self, func: Callable, *args) -> _Handle:
+        """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
+
+        Returns
+        -------
+        object with ``result()``
+            The value, or the error ``func`` raised (re-raised by ``result()``).
+        """
+        if self.client is None:
+            return _Local(func, args)
+        return self.client.submit(func, *args, pure=False, key=f"morpho-{func.__name__}-{time.monotonic_ns()}")
+
+    def close(self) -> None:
+        """Close the client and the local cluster (idempotent)."""
+        if self.client is None:
+            return
+        t0 = time.perf_counter()
+        try:
+            self.client.close()
+            if self._cluster is not None:
+                self._cluster.close()
+        finally:
+            self.client = self._cluster = None
+            self.seconds += time.perf_counter() - t0
+
+
+class _Handle:
+    def result(self):  # pragma: no cover - interface
+        raise NotImplementedError
+
+
+class _Local(_Handle):
+    """A call deferred until its result is asked for (the serial counterpart of a Dask future)."""
+
+    def __init__(self, func, args):
+        self._func, self._args = func, args
+
+    def result(self):
+        return self._func(*self._args)
+
+
+def _run_dask(client, func, first_arg, todo, extra_args, record, side_tasks=None, side=None) -> None:
+    """Run the tiles (and side tasks) on a Dask client, recording each tile as it completes."""
+    from dask.distributed import as_completed
+
+    futures = {}
+    # Largest windows first (edge tiles are smaller): the last tasks, which can leave a core
+    # idle, are then the shortest. Results are put back in tile order by the caller.
+    for spec in sorted(todo, key=lambda t: -t.height * t.width):
+        fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
+                            key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
+        futures[fut] = spec
+    extra = {client.submit(f, *args, pure=False, key=f"morpho-{name}-{time.monotonic_ns()}"): name
+             for name, (f, args) in (side_tasks or {}).items()}
+    for fut in as_completed(list(futures) + list(extra)):
+        if fut in extra:
             try:
-                df = fut.result()
-            except Exception as err:  # noqa: BLE001
-                record(spec, err=err)
-                continue
-            record(spec, df=df)
-    finally:
-        t1 = time.perf_counter()
-        client.close()
-        if cluster is not None:
-            cluster.close()
-        teardown = time.perf_counter() - t1
-    return setup + teardown
+                side[extra[fut]] = fut.result()
+            except Exception as err:  # noqa: BLE001 - the caller computes it itself
+                log.debug("side task %s failed on a worker: %s", extra[fut], err)
+            continue
+        spec = futures[fut]
+        try:
+            df = fut.result()
+        except Exception as err:  # noqa: BLE001
+            record(spec, err=err)
+            continue
+        record(spec, df=df)

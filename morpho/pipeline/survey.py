@@ -26,7 +26,7 @@ import shapely
 from ..dictionary import CRATER_COLUMNS
 from ..errors import InputError
 from ..ingest import DemInfo, open_dem, plan_tiles, valid_footprint
-from .engine import run_tiles, uses_dask
+from .engine import TilePool, run_tiles, uses_dask
 from .tile_job import TileParams, measure_tile, survey_tile
 
 __all__ = ["SurveyResult", "survey", "measure"]
@@ -37,6 +37,8 @@ log = logging.getLogger(__name__)
 DEFAULT_TILE_SIZE = 2048
 #: Modules the tile jobs import lazily: imported before the first tile (a fixed cost, not tile work).
 TILE_MODULES = ("morpho.detection", "morpho.morphometry")
+#: Columns the population statistics read (sent to a Dask worker; see _finish).
+_POPULATION_COLUMNS = ("center_x", "center_y", "lon", "lat", "diameter_m", "ellipse_azimuth_deg", "ellipticity")
 #: Largest crater searched by default on multi-tile DEMs (pixels); single-tile DEMs search up to the tile.
 DEFAULT_MAX_DIAMETER_PX = 256
 
@@ -290,9 +292,15 @@ class _ScorerLoader:
         return self._value
 
 
-def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params: dict, t_start: float,
+def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,
             started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None) -> SurveyResult:
+            footprint=None, pool: TilePool | None = None) -> SurveyResult:
+    """Scaling, scoring, population statistics and provenance of the merged craters.
+
+    The population statistics depend only on positions and sizes, so they go to a Dask worker
+    (when the tiles ran on Dask) while this process loads the model and scores; serially they
+    run here after the scoring. ``pool`` is closed here, so its teardown counts as ``cluster``.
+    """
     t_import = time.perf_counter()
     from ..outputs import run_provenance
     from ..scaling import add_scaling_columns
@@ -303,7 +311,15 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
     timing["warmup"] = timing.get("warmup", 0.0) + (t_finish - t_import)
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
     footprint_src = valid_footprint(info) if footprint is None else footprint
-    fitted, model_path = model
+    pool = TilePool() if pool is None else pool
+    population_job = None
+    if len(df):
+        cols = [c for c in _POPULATION_COLUMNS if c in df.columns]
+        population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
+    t_model = time.perf_counter()
+    fitted, model_path = loader.result()
+    waited = time.perf_counter() - t_model  # 0 when it was loaded before in-process tiles
+    timing["model_load"] = timing["model_wait"] = loader.seconds
     envelope = None
     if len(df):
         t0 = time.perf_counter()
@@ -317,7 +333,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
         outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
         df.loc[outside, "verdict"] = "neither"
         t1 = time.perf_counter()
-        pop, chains = _population(df, info, footprint_src, seed)
+        pop, chains = population_job.result()
         log.info("scaling + scoring %.1f s, population statistics %.1f s (%d craters)",
                  t1 - t0, time.perf_counter() - t1, len(df))
         df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
@@ -341,8 +357,11 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, model: tuple, params:
                "ground_pixel_m": list(info.ground_pixel_m),
                "warped_to_local_stereographic": info.needs_warp},
     )
+    before_close = pool.seconds
+    pool.close()
+    timing["cluster"] = timing.get("cluster", 0.0) + pool.seconds - before_close
     now = time.perf_counter()
-    timing["finish"] = now - t_finish
+    timing["finish"] = now - t_finish - waited - (pool.seconds - before_close)
     # Wall time of the stages (seconds; differs run to run, unlike every other value).
     caveats = run.pop("caveats")  # stays the last key
     run["seconds"] = f"{now - t_start:.3f}"
@@ -361,11 +380,15 @@ def _side_tasks(info: DemInfo) -> dict:
     return {"footprint": (valid_footprint, (info,))}
 
 
-def _run_timing(run, loader: _ScorerLoader) -> dict:
-    """Stage times around the tiles: fixed costs (cluster, waiting for the model) apart from tile work."""
+def _run_timing(run) -> dict:
+    """Stage times around the tiles: fixed costs (cluster, waiting for the model) apart from tile work.
+
+    The model's keys are filled in by :func:`_finish` once the model is loaded (before
+    in-process tiles, after Dask tiles; the survey always waits for all of it).
+    """
     return {
-        "model_load": loader.seconds,  # before in-process tiles, after Dask tiles
-        "model_wait": loader.seconds,  # never hidden behind the tiles (see _ScorerLoader)
+        "model_load": 0.0,
+        "model_wait": 0.0,
         "cluster": run.cluster_seconds,
         "warmup": run.warmup_seconds,
         "tiles": run.seconds - run.cluster_seconds - run.warmup_seconds,
@@ -459,31 +482,31 @@ def survey(
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
-    run = run_tiles(survey_tile, info, specs, (params,), workers=workers, scheduler=scheduler,
-                    run_dir=None if run_dir is None else Path(run_dir), resume=resume, progress=progress,
-                    warm_modules=TILE_MODULES, side_tasks=_side_tasks(info))
-    log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
-    t_merge = time.perf_counter()
-    frames = [f for f in run.results if len(f)]
-    df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
-    if len(df):
-        df = df[df["measure_status"].astype(str) == "ok"].reset_index(drop=True) if "measure_status" in df else df
-    if len(df):
-        x, y, _ = _metric_xy(df, info)
-        df = df.loc[_dedupe(df, x, y)].reset_index(drop=True)
-        df = _stable_order(df)
-        df["crater_id"] = [f"C{i + 1:06d}" for i in range(len(df))]
-    record = {
-        "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
-        "z_offset": info.z_offset, "min_diameter_px": min_diameter_px, "max_diameter_px": max_d,
-        "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
-        "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
-    }
-    merge = time.perf_counter() - t_merge
-    scorer = loader.result()
-    timing.update(_run_timing(run, loader), merge=merge)
-    return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
-                   failed=run.failed, command="survey", timing=timing, footprint=run.side.get("footprint"))
+    with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
+        run = run_tiles(survey_tile, info, specs, (params,), run_dir=None if run_dir is None else Path(run_dir),
+                        resume=resume, progress=progress, side_tasks=_side_tasks(info), pool=pool)
+        log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
+        t_merge = time.perf_counter()
+        frames = [f for f in run.results if len(f)]
+        df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+        if len(df):
+            df = df[df["measure_status"].astype(str) == "ok"].reset_index(drop=True) if "measure_status" in df else df
+        if len(df):
+            x, y, _ = _metric_xy(df, info)
+            df = df.loc[_dedupe(df, x, y)].reset_index(drop=True)
+            df = _stable_order(df)
+            df["crater_id"] = [f"C{i + 1:06d}" for i in range(len(df))]
+        record = {
+            "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
+            "z_offset": info.z_offset, "min_diameter_px": min_diameter_px, "max_diameter_px": max_d,
+            "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths, "n_boot": n_boot,
+            "workers": workers, "scheduler": scheduler, "resume": resume, "tiles_reused": run.reused,
+        }
+        merge = time.perf_counter() - t_merge
+        timing.update(_run_timing(run), merge=merge)
+        return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
+                       failed=run.failed, command="survey", timing=timing, footprint=run.side.get("footprint"),
+                       pool=pool)
 
 
 def measure(
@@ -546,29 +569,28 @@ def measure(
     unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
                   for c in craters.loc[~inside, "crater_id"]]
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
-    run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                    workers=workers, scheduler=scheduler, progress=progress,
-                    warm_modules=TILE_MODULES, side_tasks=_side_tasks(info))
-    t_merge = time.perf_counter()
-    frames = [f for f in run.results if len(f)]
-    df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
-    if len(df) and "measure_status" in df:
-        bad = df["measure_status"].astype(str) != "ok"
-        unmeasured += [{"crater_id": str(c), "reason": str(r)}
-                       for c, r in zip(df.loc[bad, "crater_id"], df.loc[bad, "measure_status"], strict=True)]
-        df = df.loc[~bad].reset_index(drop=True)
-    if len(df):
-        df = _stable_order(df)
-    record = {
-        "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
-        "z_offset": info.z_offset, "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths,
-        "n_boot": n_boot, "workers": workers, "scheduler": scheduler, "n_listed": len(craters),
-        "bad_rows": bad_rows or {}, "unmeasured": unmeasured,
-    }
-    merge = time.perf_counter() - t_merge
-    scorer = loader.result()
-    timing.update(_run_timing(run, loader), merge=merge)
-    return _finish(df, info, seed=seed, model=scorer, params=record, t_start=t_start, started=started,
-                   failed=run.failed, command="measure", timing=timing,
-                   unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]),
-                   footprint=run.side.get("footprint"))
+    with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
+        run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
+                        progress=progress, side_tasks=_side_tasks(info), pool=pool)
+        t_merge = time.perf_counter()
+        frames = [f for f in run.results if len(f)]
+        df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+        if len(df) and "measure_status" in df:
+            bad = df["measure_status"].astype(str) != "ok"
+            unmeasured += [{"crater_id": str(c), "reason": str(r)}
+                           for c, r in zip(df.loc[bad, "crater_id"], df.loc[bad, "measure_status"], strict=True)]
+            df = df.loc[~bad].reset_index(drop=True)
+        if len(df):
+            df = _stable_order(df)
+        record = {
+            "body": info.body.name, "band": info.band, "pixel_size": pixel_size, "z_scale": info.z_scale,
+            "z_offset": info.z_offset, "tile_size": tile_size, "n_tiles": len(specs), "n_azimuths": n_azimuths,
+            "n_boot": n_boot, "workers": workers, "scheduler": scheduler, "n_listed": len(craters),
+            "bad_rows": bad_rows or {}, "unmeasured": unmeasured,
+        }
+        merge = time.perf_counter() - t_merge
+        timing.update(_run_timing(run), merge=merge)
+        return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
+                       failed=run.failed, command="measure", timing=timing,
+                       unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]),
+                       footprint=run.side.get("footprint"), pool=pool)
