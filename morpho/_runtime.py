@@ -73,8 +73,11 @@ def retain_freed_memory() -> bool:
     """
     if not sys.platform.startswith("linux"):
         return False
-    # Only effective before numpy is imported (the command line calls this first).
-    os.environ.setdefault(HUGEPAGE_VARIABLE, "0")
+    # In the environment too: numpy reads it when it loads (only effective before numpy is
+    # imported; the command line calls this first), glibc at the start of child processes
+    # (e.g. the training set's process pool).
+    for name, value in WORKER_ENVIRON.items():
+        os.environ.setdefault(name, value)
     try:
         # The C library already loaded in this process (no library search, no subprocess).
         mallopt = ctypes.CDLL(None).mallopt

@@ -169,18 +169,20 @@ def test_retained_memory_is_reused_without_new_page_faults():
     assert faults("retain") < 8
 
 
-def env_tile(name, spec):
-    """A tile that reports an environment variable of the process it ran in."""
-    return pd.DataFrame({"tile": [spec.key], "value": [os.environ.get(name, "")], "pid": [os.getpid()]})
+def env_tile(names, spec):
+    """A tile that reports environment variables of the process it ran in."""
+    return pd.DataFrame({"tile": [spec.key], "pid": [os.getpid()],
+                         **{name: [os.environ.get(name, "")] for name in names}})
 
 
 @pytest.mark.slow
 def test_local_workers_start_with_the_retaining_malloc_settings():
-    for name, value in [("MALLOC_MMAP_THRESHOLD_", str(1 << 30)), ("NUMPY_MADVISE_HUGEPAGE", "0")]:
-        run = run_tiles(env_tile, name, SPECS[:4], workers=2, progress=False)
-        df = pd.concat(run.results, ignore_index=True)
-        assert set(df["value"]) == {value}
-        assert os.getpid() not in set(df["pid"])  # really ran in worker processes
+    names = ("MALLOC_MMAP_THRESHOLD_", "MALLOC_TRIM_THRESHOLD_", "NUMPY_MADVISE_HUGEPAGE")
+    run = run_tiles(env_tile, names, SPECS[:4], workers=2, progress=False)
+    df = pd.concat(run.results, ignore_index=True)
+    assert os.getpid() not in set(df["pid"])  # really ran in worker processes
+    assert set(df["MALLOC_MMAP_THRESHOLD_"]) == set(df["MALLOC_TRIM_THRESHOLD_"]) == {str(1 << 30)}
+    assert set(df["NUMPY_MADVISE_HUGEPAGE"]) == {"0"}
 
 
 def _footprint_like(value):

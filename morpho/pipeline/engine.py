@@ -13,6 +13,7 @@ folder.
 
 from __future__ import annotations
 
+import contextlib
 import importlib
 import logging
 import os
@@ -266,8 +267,10 @@ class TilePool:
         if self.scheduler is None:
             # Dask's nanny sets MALLOC_TRIM_THRESHOLD_ low so workers give memory back; our workers
             # instead keep freed pages for the next tile (see ``morpho._runtime``: tiles ~2x faster).
+            # The nanny prefers this process's environment to its config (and copies what it
+            # spawns with into it), so both are set while the workers start.
             environ = {f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in WORKER_ENVIRON.items()}
-            with dask.config.set(environ):
+            with dask.config.set(environ), _environ(WORKER_ENVIRON):
                 self._cluster = LocalCluster(n_workers=self.n_workers, threads_per_worker=1, processes=True,
                                              dashboard_address=None)
             self.client = Client(self._cluster)
@@ -303,6 +306,21 @@ class TilePool:
         finally:
             self.client = self._cluster = None
             self.seconds += time.perf_counter() - t0
+
+
+@contextlib.contextmanager
+def _environ(values: Mapping[str, str]):
+    """Set environment variables of this process for the ``with`` block, then restore them."""
+    saved = {k: os.environ.get(k) for k in values}
+    os.environ.update(values)
+    try:
+        yield
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
 
 
 class _Handle:

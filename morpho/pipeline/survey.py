@@ -334,7 +334,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
         df.loc[outside, "verdict"] = "neither"
         t1 = time.perf_counter()
         pop, chains = population_job.result()
-        log.info("scaling + scoring %.1f s, population statistics %.1f s (%d craters)",
+        log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
                  t1 - t0, time.perf_counter() - t1, len(df))
         df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
         df["chain_id"] = np.asarray(pop.chain_id, dtype="int64")
