@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from morpho._runtime import WORKER_ENVIRON
 from morpho.ingest import plan_windows
 from morpho.pipeline import run_tiles
 from morpho.pipeline.engine import uses_dask
@@ -160,9 +161,12 @@ def test_retained_memory_is_reused_without_new_page_faults():
     # mallopt(3), glibc manual "Memory Allocation Tunables": with both thresholds above the
     # allocation size a freed block stays in the heap, so the next one touches no new pages;
     # with the defaults a 64 MiB block is mapped afresh (>= 64 MiB / 2 MiB huge pages faults).
+    # glibc's defaults in the child: no tunables inherited from this process (the CLI exports them).
+    env = {k: v for k, v in os.environ.items() if k not in WORKER_ENVIRON}
+
     def faults(mode):
         out = subprocess.run([sys.executable, "-c", _REUSE_SCRIPT, mode], capture_output=True,
-                             text=True, check=True)
+                             text=True, check=True, env=env)
         return int(out.stdout.strip())
 
     assert faults("default") >= 32
