@@ -157,3 +157,17 @@ def _thomas(rng, parents=20, per=15, sigma=0.01):
     x = np.repeat(px, per) + rng.normal(0, sigma, parents * per)
     y = np.repeat(py, per) + rng.normal(0, sigma, parents * per)
     return x, y
+
+
+def test_population_package_loads_its_statistics_on_first_use():
+    # A survey's main process projects positions without importing the statistics' heavy
+    # dependencies (they run on a Dask worker); the public names still resolve.
+    import subprocess
+    import sys
+
+    code = ("import sys, morpho.population as p; from morpho.population.projection import to_local_metric; "
+            "print('sklearn' in sys.modules, 'scipy.stats' in sys.modules); "
+            "print(p.population_statistics.__module__, p.contrast_regions.__module__)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split("\n")
+    assert out[0] == "False False"
+    assert out[1] == "morpho.population.statistics morpho.population.contrast"

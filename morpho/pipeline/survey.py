@@ -94,7 +94,7 @@ def _metric_xy(df: pd.DataFrame, info: DemInfo):
     """Crater centres in a local azimuthal-equidistant plane (metres) centred on the DEM."""
     if info.crs is None:
         return df["center_x"].to_numpy(float), df["center_y"].to_numpy(float), None
-    from ..population import to_local_metric
+    from ..population.projection import to_local_metric
 
     geo = info.geodetic_crs()
     cx, cy = info.transform @ (info.width / 2.0, info.height / 2.0)
@@ -301,21 +301,23 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     (when the tiles ran on Dask) while this process loads the model and scores; serially they
     run here after the scoring. ``pool`` is closed here, so its teardown counts as ``cluster``.
     """
-    t_import = time.perf_counter()
-    from ..outputs import run_provenance
-    from ..scaling import add_scaling_columns
-    from ..scoring import score_craters, training_domain_notes
-
     t_finish = time.perf_counter()
-    # One-off imports of the finish stage's code are a fixed cost, like the tile code's.
-    timing["warmup"] = timing.get("warmup", 0.0) + (t_finish - t_import)
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
     footprint_src = valid_footprint(info) if footprint is None else footprint
     pool = TilePool() if pool is None else pool
     population_job = None
     if len(df):
+        # Submitted first, so that a worker computes while this process imports and scores.
         cols = [c for c in _POPULATION_COLUMNS if c in df.columns]
         population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
+    t_import = time.perf_counter()
+    from ..outputs import run_provenance
+    from ..scaling import add_scaling_columns
+    from ..scoring import score_craters, training_domain_notes
+
+    # One-off imports of the finish stage's code are a fixed cost, like the tile code's.
+    imported = time.perf_counter() - t_import
+    timing["warmup"] = timing.get("warmup", 0.0) + imported
     t_model = time.perf_counter()
     fitted, model_path = loader.result()
     waited = time.perf_counter() - t_model  # 0 when it was loaded before in-process tiles
@@ -361,7 +363,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     pool.close()
     timing["cluster"] = timing.get("cluster", 0.0) + pool.seconds - before_close
     now = time.perf_counter()
-    timing["finish"] = now - t_finish - waited - (pool.seconds - before_close)
+    timing["finish"] = now - t_finish - imported - waited - (pool.seconds - before_close)
     # Wall time of the stages (seconds; differs run to run, unlike every other value).
     caveats = run.pop("caveats")  # stays the last key
     run["seconds"] = f"{now - t_start:.3f}"

@@ -13,8 +13,23 @@ and DataFrames out. One module per concept:
   :mod:`.contrast`: region against region; :mod:`.projection`: lon/lat to metres.
 """
 
-from .contrast import contrast_regions
-from .projection import to_local_metric
-from .statistics import PopulationResult, population_statistics
+import importlib
 
 __all__ = ["PopulationResult", "population_statistics", "contrast_regions", "to_local_metric"]
+
+# Loaded on first use (PEP 562): the statistics pull in scipy.stats and scikit-learn, which a
+# survey's main process does not need when its statistics run on a Dask worker.
+_WHERE = {"PopulationResult": ".statistics", "population_statistics": ".statistics",
+          "contrast_regions": ".contrast", "to_local_metric": ".projection"}
+
+
+def __getattr__(name):
+    if name in _WHERE:
+        value = getattr(importlib.import_module(_WHERE[name], __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))
