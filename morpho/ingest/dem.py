@@ -470,10 +470,20 @@ def _read_window(info: DemInfo, spec: TileSpec) -> np.ndarray:
                 raw = src.read(info.band, window=window, masked=True)
     except (RasterioIOError, OSError, ValueError) as err:
         raise _fail_open(info.path, err) from err
-    # In place after one conversion to float64: a tile makes no other full-size temporaries here.
+    z, mask = _elevation(raw, info)
+    z[mask] = np.nan
+    return z
+
+
+def _elevation(raw, info: DemInfo) -> tuple[np.ndarray, np.ndarray]:
+    """Elevation in metres (float64) and its invalid mask from a masked band read.
+
+    Invalid: masked (nodata), not finite, or beyond :data:`MAX_ABS_ELEVATION_M` after
+    scaling. Computed in place after one conversion, so a tile makes no other full-size
+    temporaries here.
+    """
     z = np.ma.getdata(raw).astype(np.float64)
-    mask = np.ma.getmaskarray(raw)
-    del raw
+    mask = np.ma.getmaskarray(raw).copy()
     if info.z_scale != 1.0:
         z *= info.z_scale
     if info.z_offset != 0.0:
@@ -482,8 +492,7 @@ def _read_window(info: DemInfo, spec: TileSpec) -> np.ndarray:
     with np.errstate(invalid="ignore"):
         mask |= z > MAX_ABS_ELEVATION_M
         mask |= z < -MAX_ABS_ELEVATION_M
-    z[mask] = np.nan
-    return z
+    return z, mask
 
 
 def _local_crs(info: DemInfo, lon0: float, lat0: float) -> pyproj.CRS:
@@ -586,8 +595,7 @@ def valid_footprint(info: DemInfo, max_size: int = 1024):
     out_h = max(1, math.ceil(info.height / step))
     out_w = max(1, math.ceil(info.width / step))
     raw = _decimated(info, out_h, out_w)
-    data = np.ma.getdata(raw).astype(np.float64) * info.z_scale + info.z_offset
-    ok = ~np.ma.getmaskarray(raw) & np.isfinite(data) & (np.abs(data) <= MAX_ABS_ELEVATION_M)
+    ok = ~_elevation(raw, info)[1]
     t = info.transform @ Affine.scale(info.width / out_w, info.height / out_h)
     polys = [shapely.geometry.shape(geom) for geom, val in
              features.shapes(ok.astype(np.uint8), mask=ok, transform=t) if val == 1]

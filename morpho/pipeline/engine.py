@@ -48,8 +48,8 @@ class TileRun:
     reused : int
         Tiles taken from the run folder (``resume``).
     cluster_seconds : float
-        Starting (and, unless the pool stays open, closing) the Dask client and local cluster, with the workers' imports of
-        ``warm_modules`` (a fixed cost; 0 when serial).
+        Starting (and, unless the pool stays open, closing) the Dask client and local cluster,
+        with the workers' imports of ``warm_modules`` (a fixed cost; 0 when serial).
     warmup_seconds : float
         Importing ``warm_modules`` in this process before in-process tiles (a fixed cost).
     side : dict
@@ -180,7 +180,7 @@ def run_tiles(
                 _record(spec, df=df)
         elif todo:
             pool.start()
-            _run_dask(pool.client, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side)
+            _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side)
     finally:
         if own:
             pool.close()
@@ -282,7 +282,7 @@ class TilePool:
         finally:
             self.seconds += time.perf_counter() - t0
 
-    def submit(self, func: Callable, *args) -> _Handle:
+    def submit(self, func: Callable, *args):
         """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
 
         Returns
@@ -323,12 +323,7 @@ def _environ(values: Mapping[str, str]):
                 os.environ[k] = v
 
 
-class _Handle:
-    def result(self):  # pragma: no cover - interface
-        raise NotImplementedError
-
-
-class _Local(_Handle):
+class _Local:
     """A call deferred until its result is asked for (the serial counterpart of a Dask future)."""
 
     def __init__(self, func, args):
@@ -338,10 +333,11 @@ class _Local(_Handle):
         return self._func(*self._args)
 
 
-def _run_dask(client, func, first_arg, todo, extra_args, record, side_tasks=None, side=None) -> None:
-    """Run the tiles (and side tasks) on a Dask client, recording each tile as it completes."""
+def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, side=None) -> None:
+    """Run the tiles (and side tasks) on a started pool's Dask client, recording each tile as it completes."""
     from dask.distributed import as_completed
 
+    client = pool.client
     futures = {}
     # Largest windows first (edge tiles are smaller): the last tasks, which can leave a core
     # idle, are then the shortest. Results are put back in tile order by the caller.
@@ -349,8 +345,8 @@ def _run_dask(client, func, first_arg, todo, extra_args, record, side_tasks=None
         fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
                             key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
         futures[fut] = spec
-    extra = {client.submit(f, *args, pure=False, key=f"morpho-{name}-{time.monotonic_ns()}"): name
-             for name, (f, args) in (side_tasks or {}).items()}
+    # Queued behind the tiles (Dask runs earlier submissions first).
+    extra = {pool.submit(f, *args): name for name, (f, args) in (side_tasks or {}).items()}
     for fut in as_completed(list(futures) + list(extra)):
         if fut in extra:
             try:

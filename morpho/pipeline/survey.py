@@ -294,7 +294,7 @@ class _ScorerLoader:
 
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,
             started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None, pool: TilePool | None = None) -> SurveyResult:
+            footprint=None, pool: TilePool) -> SurveyResult:
     """Scaling, scoring, population statistics and provenance of the merged craters.
 
     The population statistics depend only on positions and sizes, so they go to a Dask worker
@@ -304,7 +304,6 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     t_finish = time.perf_counter()
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
     footprint_src = valid_footprint(info) if footprint is None else footprint
-    pool = TilePool() if pool is None else pool
     population_job = None
     if len(df):
         # Submitted first, so that a worker computes while this process imports and scores.
