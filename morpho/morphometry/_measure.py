@@ -9,10 +9,13 @@ from ._degradation import degradation_columns
 from ._detrend import FLANK_EXPONENT, annulus_rings
 from ._features import azimuth_features, bowl_offset, crest_shape, profile_features
 from ._geometry import nanquantile_last, replicate_std
+from ._neighbours import neighbour_context, neighbour_mask, neighbour_pairs
 from ._refine import (
     MIN_COVERAGE,
+    R_MAX,
     detrended_profiles,
     find_inner_crest,
+    profile_grid,
     radius_batches,
     refine_craters,
     sharpen_crest,
@@ -68,8 +71,23 @@ def _combine(az, pr):
     return out
 
 
-def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
-    prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths)
+class _Neighbours:
+    """The other craters of a measurement, as seen from one batch."""
+
+    def __init__(self, rows, cols, rad, enabled):
+        self.rows, self.cols, self.rad = rows, cols, rad
+        self.pairs = neighbour_pairs(rows, cols, rad, R_MAX) if enabled else neighbour_pairs([], [], [], R_MAX)
+        self.context = neighbour_context(rad, self.pairs, rows.size)
+
+    def mask(self, idx, n_azimuths):
+        """``(mask, cover)`` of batch ``idx`` on its profile grid."""
+        az, r_norm = profile_grid(self.rad[idx], n_azimuths)
+        return neighbour_mask(self.rows, self.cols, self.rad, self.pairs, idx, az, r_norm)
+
+
+def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body, masked=None):
+    mask, cover = masked if masked is not None else (None, np.zeros(rows.size))
+    prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths, mask=mask)
     r_norm, az = prof.r_norm, prof.azimuths
     crest = find_inner_crest(zd, r_norm, FINAL_WINDOW)
     crest = sharpen_crest(zd, r_norm, crest, rad)
@@ -117,6 +135,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
     cols_out["pixels_per_diameter"] = diameter / spacing
     cols_out["rim_coverage"] = np.isfinite(crest.r_norm).mean(1)
     cols_out["regional_slope_deg"] = np.degrees(np.arctan(np.hypot(coef[:, 1], coef[:, 2]) / spacing))
+    cols_out["neighbour_cover"] = cover
     if body is not None:
         deg = degradation_columns(mean_prof, r_norm, diameter, body, boot_prof=boot_prof)
     else:  # keep the schema stable; the fit needs the body's fresh-crater shape
@@ -127,7 +146,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body):
 
 
 def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boot=50, seed=0,
-                    refine=True, body=None, chunk=1000):
+                    refine=True, body=None, chunk=1000, neighbours=True):
     """Measure crater morphometry on a DEM, one row per crater, with bootstrap errors.
 
     Profiles are sampled along ``n_azimuths`` rays out to 2.5 R (bilinear,
@@ -156,6 +175,13 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         (Fassett & Thomson 2014), starting from that body's fresh-crater profile.
     chunk : int
         Craters per vectorised batch (memory bound).
+    neighbours : bool
+        Treat the other craters of the call as neighbours (default): profile samples
+        beyond 1.2 R that fall within 1.3 radii of a neighbour's centre are left out of the
+        measurement (unless that neighbour's rim encloses the centre, or less than 40 % of
+        the 1.3-2.5 R annulus would remain), and the ``neighbour_*`` context columns
+        describe the overlap (:mod:`morpho.morphometry._neighbours`). False measures every
+        crater as if alone (the context columns are then 0).
 
     Returns
     -------
@@ -207,14 +233,18 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         # Same columns and dtypes as a real result: measure one dummy crater, keep no rows.
         probe = _measure_chunk(np.zeros((16, 16)), np.array([8.0]), np.array([8.0]),
                                np.array([3.0]), np.array([1.0]), n_azimuths, boot_idx, body)
-        return probe.iloc[:0].assign(measure_status=pd.Series(dtype=object))
+        context = neighbour_context(np.zeros(0), neighbour_pairs([], [], [], R_MAX), 0)
+        return probe.iloc[:0].assign(**context, measure_status=pd.Series(dtype=object))
+    near = _Neighbours(r0, c0, rad0, neighbours)
     parts = []
     for idx in radius_batches(rad0, chunk):
         part = _measure_chunk(z, r0[idx], c0[idx], rad0[idx], spacing[idx], n_azimuths,
-                              boot_idx, body)
+                              boot_idx, body, near.mask(idx, n_azimuths))
         part.index = idx
         parts.append(part)
     out = pd.concat(parts).sort_index()
+    for name, values in near.context.items():
+        out[name] = values
     cov = out["rim_coverage"].to_numpy()
     st = np.where((status == "ok") & (cov < MIN_COVERAGE),
                   np.where(cov == 0, "no_rim_crest", "low_rim_coverage"), status)

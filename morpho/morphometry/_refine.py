@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -14,7 +14,7 @@ from ._validate import as_centres, as_dem, as_spacing
 from .profiles import sample_polar, sample_radial_profiles
 
 __all__ = ["Crest", "find_crest", "find_inner_crest", "inner_summit_index",
-           "sharpen_crest", "refine_craters", "detrended_profiles",
+           "sharpen_crest", "refine_craters", "detrended_profiles", "profile_grid",
            "n_radii_for", "R_MAX"]
 
 #: Outer profile radius (crater radii) and bounds on radial samples per profile: a batch
@@ -276,10 +276,22 @@ def n_radii_for(radius_px):
     return int(np.clip(np.ceil(R_MAX * big / 0.35) + 1, *N_RADII))
 
 
-def detrended_profiles(z, rows, cols, radius_px, n_azimuths):
-    """Sample and detrend one batch -> (RadialProfiles, detrended z, plane coefficients)."""
+def profile_grid(radius_px, n_azimuths):
+    """``(azimuths, r_norm)`` of the profiles :func:`detrended_profiles` samples for a batch."""
+    return (np.linspace(0.0, 2.0 * np.pi, n_azimuths, endpoint=False),
+            np.linspace(0.0, R_MAX, n_radii_for(radius_px)))
+
+
+def detrended_profiles(z, rows, cols, radius_px, n_azimuths, mask=None):
+    """Sample and detrend one batch -> (RadialProfiles, detrended z, plane coefficients).
+
+    ``mask`` (bool, shape (n, n_az, n_r) on :func:`profile_grid`), if given, marks samples
+    to treat as no data (NaN) before the regional plane is fitted.
+    """
     prof = sample_radial_profiles(z, rows, cols, radius_px, n_azimuths=n_azimuths,
                                   n_radii=n_radii_for(radius_px), r_max_factor=R_MAX)
+    if mask is not None:
+        prof = replace(prof, z=np.where(mask, np.nan, prof.z))
     zd, coef = detrend_profiles(prof.z, prof.r_norm, prof.azimuths, prof.radius_px)
     return prof, zd, coef
 

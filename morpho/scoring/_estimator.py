@@ -31,7 +31,12 @@ from threadpoolctl import threadpool_limits
 
 from . import _typicality as typ
 
-__all__ = ["ImpactSpotClassifier", "log10_lr_from_p"]
+__all__ = ["ImpactSpotClassifier", "log10_lr_from_p", "CONTEXT_FEATURES"]
+
+#: Model features that describe how a crater is seen, not its shape: resolution and the
+#: overlap with neighbouring craters (morpho.morphometry._neighbours).
+CONTEXT_FEATURES = ("pixels_per_diameter", "neighbour_cover", "neighbour_overlap",
+                    "neighbour_size_log_ratio", "inside_neighbour")
 
 _P_CLIP = 1e-6  # keeps log10_lr finite: |log10_lr| <= 6
 
@@ -97,9 +102,10 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
     max_reference : int, default=1000
         At most this many training craters per hypothesis are kept for typicality
         (random subsample), which bounds model size and scoring time.
-    typicality_exclude : tuple of str, default=("pixels_per_diameter",)
-        Features (by name) left out of typicality: resolution is not morphology, and a
-        crater seen at more pixels than any training crater is not thereby atypical.
+    typicality_exclude : tuple of str, default=CONTEXT_FEATURES
+        Features (by name) left out of typicality: resolution and crowding are not
+        morphology; a crater seen at more pixels, or among more neighbours, than any
+        training crater is not thereby atypical.
     random_state : int, RandomState or None, default=None
         Seeds the boosting, the calibration folds and the reference subsample.
 
@@ -144,7 +150,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         n_neighbors=5,
         typicality_metric="euclidean",
         max_reference=1000,
-        typicality_exclude=("pixels_per_diameter",),
+        typicality_exclude=CONTEXT_FEATURES,
         random_state=None,
     ):
         self.impact_label = impact_label
