@@ -22,6 +22,14 @@ __all__ = [
 ]
 
 
+class _FileErrorNew:
+    """``__new__`` of errors that are also ``OSError``: the solid builtin base's, so that
+    ``cls.__new__(cls, *args)`` (how dask's traceback pickling rebuilds an exception raised on a
+    worker) works; by attribute lookup it would be ``ValueError.__new__``, which refuses."""
+
+    __new__ = OSError.__new__
+
+
 class MorphoError(Exception):
     """Root of all morpho errors.
 
@@ -55,7 +63,7 @@ class InputError(MorphoError, ValueError):
     exit_code = 2
 
 
-class DemError(InputError, OSError):
+class DemError(_FileErrorNew, InputError, OSError):
     """A DEM cannot be read or is not usable."""
 
 
@@ -75,7 +83,7 @@ class HypothesisFileError(InputError):
     """A hypothesis file is invalid."""
 
 
-class ModelFileError(InputError, OSError):
+class ModelFileError(_FileErrorNew, InputError, OSError):
     """A model file is corrupt, too new, or holds untrusted types."""
 
 

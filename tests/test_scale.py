@@ -162,3 +162,62 @@ def test_broken_model_file_stops_a_dask_survey_before_anything_is_kept(tmp_path,
         survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2, model=model,
                run_dir=run_dir)
     assert not run_dir.exists()
+
+
+_LIGHT_MAIN = """
+import json, sys
+from morpho.pipeline import survey
+res = survey(sys.argv[1], tile_size=int(sys.argv[2]), max_diameter_px=float(sys.argv[3]), seed=2, workers=2)
+timing = json.loads(res.run["timing_s"])
+print(json.dumps({"sklearn": "sklearn" in sys.modules, "skops": "skops" in sys.modules,
+                  "model_load": timing["model_load"], "n": len(res.craters),
+                  "scored": bool(res.craters["p_impact"].notna().all())}))
+"""
+
+
+@pytest.mark.slow
+def test_dask_survey_scores_on_a_worker_and_its_main_process_stays_light(crater_dem):
+    # Design check (DEVELOPERS.md, pipeline notes): with Dask workers the model is loaded and
+    # used on a worker, so the main process never imports scikit-learn or skops.
+    out = subprocess.run([sys.executable, "-c", _LIGHT_MAIN, str(crater_dem), str(TILE), str(MAXD)],
+                         capture_output=True, text=True, check=True, timeout=300)
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    assert got["n"] > 20 and got["scored"]
+    assert not got["sklearn"] and not got["skops"]
+    assert got["model_load"] > 0  # timed on the worker that loaded it
+
+
+@pytest.mark.slow
+def test_untrusted_model_is_refused_on_the_workers_naming_the_users_file(tmp_path, crater_dem):
+    import fractions
+
+    import skops.io as sio
+
+    import morpho.scoring._persistence as persistence
+    from morpho.errors import ModelFileError
+    from morpho.scoring import ImpactSpotClassifier
+
+    from ._scoring_toy import toy_features
+
+    X, y = toy_features(80, seed=4)
+    payload = {"format": persistence.FORMAT, "format_version": 1,
+               "model": ImpactSpotClassifier(random_state=0, max_iter=10).fit(X, y),
+               "card": {}, "extra": fractions.Fraction(1, 3)}
+    model = tmp_path / "evil.skops"
+    sio.dump(payload, model)
+    out = tmp_path / "out.gpkg"
+    with pytest.raises(ModelFileError, match=r"evil\.skops.*untrusted types.*fractions\.Fraction"):
+        survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2, model=model)
+    assert not out.exists()
+
+
+def test_shipped_model_bytes_that_are_not_a_model_are_refused_by_the_users_name(tmp_path):
+    # A remote scheduler's workers get the model's bytes; an error must name the file the
+    # user gave, not the worker's temporary copy (issue: a clear error naming the file).
+    from morpho.errors import ModelFileError
+
+    survey_module = sys.modules["morpho.pipeline.survey"]
+    spec = survey_module._ModelSpec(path="/data/models/mine.skops", sha256="0" * 64, data=b"not a zip file")
+    with pytest.raises(ModelFileError, match=r"^/data/models/mine\.skops: "):
+        survey_module._cached_model(spec)
+    assert spec.sha256 not in survey_module._MODELS

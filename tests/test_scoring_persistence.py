@@ -114,3 +114,15 @@ def test_not_a_model_refused(tmp_path):
         load_model(path)
     with pytest.raises(ModelFileError, match="no model file"):
         load_model(tmp_path / "missing.skops")
+
+
+def test_model_path_needs_neither_scikit_learn_nor_skops():
+    # A Dask survey's main process only asks where the model is; the scoring package loads
+    # its members on first use (PEP 562), so that stays light.
+    import subprocess
+    import sys
+
+    code = ("import sys; from morpho.scoring import default_model_path; default_model_path(); "
+            "print('sklearn' in sys.modules, 'skops' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
+    assert out == ["False", "False"]

@@ -54,6 +54,8 @@ class TileRun:
         Importing ``warm_modules`` in this process before in-process tiles (a fixed cost).
     side : dict
         Results of ``side_tasks`` that ran on Dask workers (name -> value).
+    background : dict
+        Handles (``result()``) of ``background_tasks`` submitted to Dask workers, not waited for.
     """
 
     results: list = field(default_factory=list)
@@ -63,6 +65,7 @@ class TileRun:
     cluster_seconds: float = 0.0
     warmup_seconds: float = 0.0
     side: dict = field(default_factory=dict)
+    background: dict = field(default_factory=dict)
 
 
 def _cache_path(run_dir: Path, spec: TileSpec) -> Path:
@@ -91,6 +94,7 @@ def run_tiles(
     before_first: Callable[[], None] | None = None,
     warm_modules: Sequence[str] = (),
     side_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
+    background_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
     pool: TilePool | None = None,
 ) -> TileRun:
     """Run ``func(first_arg, spec, *extra_args)`` for every tile.
@@ -125,6 +129,11 @@ def run_tiles(
         is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
         time the last tiles leave a core idle); its value goes to ``TileRun.side[name]``.
         Serially, or if it fails on a worker, it is left out and the caller computes it itself.
+    background_tasks : mapping, optional
+        ``name -> (func, args)``: like ``side_tasks`` (submitted after them), but not waited for:
+        the handle goes to ``TileRun.background[name]`` and the caller collects it when it needs
+        it (e.g. loading the scoring model on a worker while the last tiles finish). Serially
+        nothing is submitted.
     pool : TilePool, optional
         An open pool to run on, which stays open afterwards for :meth:`TilePool.submit` (its
         ``workers``, ``scheduler`` and ``warm_modules`` apply; those given here are ignored).
@@ -180,7 +189,8 @@ def run_tiles(
                 _record(spec, df=df)
         elif todo:
             pool.start()
-            _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side)
+            _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
+                      dict(background_tasks or {}), run.background)
     finally:
         if own:
             pool.close()
@@ -282,8 +292,10 @@ class TilePool:
         finally:
             self.seconds += time.perf_counter() - t0
 
-    def submit(self, func: Callable, *args):
+    def submit(self, func: Callable, *args, workers: Sequence[str] | None = None):
         """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
+
+        ``workers`` (addresses) is a preference: another worker may run it if those are gone.
 
         Returns
         -------
@@ -292,7 +304,15 @@ class TilePool:
         """
         if self.client is None:
             return _Local(func, args)
-        return self.client.submit(func, *args, pure=False, key=f"morpho-{func.__name__}-{time.monotonic_ns()}")
+        where = {"workers": list(workers), "allow_other_workers": True} if workers else {}
+        return self.client.submit(func, *args, pure=False, key=f"morpho-{func.__name__}-{time.monotonic_ns()}",
+                                  **where)
+
+    def worker_addresses(self) -> list[str]:
+        """Addresses of the connected workers (empty when serial)."""
+        if self.client is None:
+            return []
+        return sorted(self.client.scheduler_info().get("workers", {}))
 
     def close(self) -> None:
         """Close the client and the local cluster (idempotent)."""
@@ -333,7 +353,8 @@ class _Local:
         return self._func(*self._args)
 
 
-def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, side=None) -> None:
+def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, side=None,
+              background_tasks=None, background=None) -> None:
     """Run the tiles (and side tasks) on a started pool's Dask client, recording each tile as it completes."""
     from dask.distributed import as_completed
 
@@ -347,6 +368,8 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
         futures[fut] = spec
     # Queued behind the tiles (Dask runs earlier submissions first).
     extra = {pool.submit(f, *args): name for name, (f, args) in (side_tasks or {}).items()}
+    for name, (f, args) in (background_tasks or {}).items():
+        background[name] = pool.submit(f, *args)
     for fut in as_completed(list(futures) + list(extra)):
         if fut in extra:
             try:

@@ -9,6 +9,8 @@ statistics on the merged table, and return a :class:`SurveyResult` that
 
 from __future__ import annotations
 
+import hashlib
+import importlib
 import json
 import logging
 import math
@@ -192,7 +194,10 @@ def _chains_frame(records: list, lines: list, info: DemInfo) -> gpd.GeoDataFrame
 
 
 def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
-    """Population statistics on the merged table; chains mapped back to the DEM's CRS."""
+    """Population statistics on the merged table; chains mapped back to the DEM's CRS.
+
+    Returns ``({"stats", "envelope", "cluster_id", "chain_id"}, chains)``.
+    """
     from ..population import population_statistics
 
     x, y, origin = _metric_xy(craters, info)
@@ -213,7 +218,10 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
         lines = [shapely.transform(g, lambda xy: np.column_stack(back.transform(xy[:, 0], xy[:, 1])))
                  for g in lines]
     chains = _chains_frame(records, lines, info)
-    return res, chains
+    # Plain pandas/numpy only: unpickling a PopulationResult would import the statistics
+    # (and scikit-learn) into the main process just to read four fields.
+    return {"stats": res.stats, "envelope": res.envelope, "cluster_id": np.asarray(res.cluster_id, dtype="int64"),
+            "chain_id": np.asarray(res.chain_id, dtype="int64")}, chains
 
 
 def _load_scorer(model):
@@ -252,17 +260,103 @@ def _precheck_model(model) -> None:
                              fix="rebuild it with `morpho train` or reinstall morpho.")
 
 
-class _ScorerLoader:
-    """Loads the scoring model: before in-process tiles, after Dask tiles.
+@dataclass(frozen=True)
+class _ModelSpec:
+    """Where a Dask worker finds the scoring model: the file (local cluster) or its bytes (remote)."""
 
-    Importing the scorer's libraries and reading the model is a fixed ~2 s. In-process tiles
+    path: str
+    sha256: str
+    data: bytes | None = None
+
+
+def _model_spec(model, *, ship: bool) -> _ModelSpec:
+    """The model file's path and hash, with its bytes when the workers may not see this disk."""
+    from ..scoring import default_model_path  # light: no scikit-learn or skops
+
+    path = default_model_path() if model is None or model == "default" else Path(model)
+    data = path.read_bytes()
+    return _ModelSpec(str(path), hashlib.sha256(data).hexdigest(), data if ship else None)
+
+
+#: Models loaded in this process, by file hash (a Dask worker keeps the one it loaded for scoring).
+_MODELS: dict[str, object] = {}
+
+
+def _cached_model(spec: _ModelSpec):
+    """``(model, seconds spent loading it now)``: the model of ``spec``, loaded once per process."""
+    if spec.sha256 in _MODELS:
+        return _MODELS[spec.sha256], 0.0
+    from ..errors import ModelFileError
+    from ..scoring import load_model
+
+    t0 = time.perf_counter()
+    if spec.data is None:
+        model = load_model(spec.path)
+    else:
+        import tempfile
+
+        with tempfile.TemporaryDirectory(prefix="morpho-model-") as tmp:
+            local = Path(tmp) / Path(spec.path).name
+            local.write_bytes(spec.data)
+            try:
+                model = load_model(local)
+            except ModelFileError as err:  # name the user's file, not the worker's copy
+                raise ModelFileError(err.bare_message, path=spec.path, fix=err.fix) from None
+    _MODELS[spec.sha256] = model
+    return model, time.perf_counter() - t0
+
+
+def _warm_model(spec: _ModelSpec):
+    """Load the model on a Dask worker ahead of scoring: ``(worker address, seconds)``."""
+    from dask.distributed import get_worker
+
+    _, seconds = _cached_model(spec)
+    return get_worker().address, seconds
+
+
+def _warm_population():
+    """Import the population statistics on a Dask worker ahead of use (~2 s): its address."""
+    from dask.distributed import get_worker
+
+    importlib.import_module("morpho.population.statistics")
+    return get_worker().address
+
+
+def _apply_scores(df: pd.DataFrame, body, fitted) -> pd.DataFrame:
+    """Scaling residuals, score columns and the training-domain guard of merged craters."""
+    from ..scaling import add_scaling_columns
+    from ..scoring import score_craters, training_domain_notes
+
+    df = add_scaling_columns(df, body)
+    scores = score_craters(df, fitted)
+    for col in scores.columns:
+        df[col] = scores[col].to_numpy()
+    # Outside the training domain the classifier extrapolates: flag it, claim neither.
+    notes = training_domain_notes(df, body)
+    df["scoring_domain"] = notes
+    outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
+    df.loc[outside, "verdict"] = "neither"
+    return df
+
+
+def _score_table(df: pd.DataFrame, body, spec: _ModelSpec):
+    """:func:`_apply_scores` with the model of ``spec`` (on a worker): ``(table, seconds loading)``."""
+    fitted, seconds = _cached_model(spec)
+    return _apply_scores(df, body, fitted), seconds
+
+
+class _ScorerLoader:
+    """Loads the scoring model in this process, before in-process tiles; checks it for Dask runs.
+
+    Importing the scorer's libraries and reading the model is a fixed ~2-3 s. In-process tiles
     load it first (a thread importing modules beside numpy-heavy tile code slows both:
-    measured 1024^2 tile 1.5 s -> 4-8 s). With Dask workers it is loaded after the tiles:
-    loading it beside them put ~124 MB (scikit-learn, skops, the model) in the main process
-    during the workers' memory peak, which took an 8192^2 survey over 2 GiB. A user's model
-    file gets cheap checks up front (:func:`_precheck_model`), so a missing or broken file
-    still stops the survey before any tile runs. ``seconds`` is the time spent loading (the
-    survey waits for all of it).
+    measured 1024^2 tile 1.5 s -> 4-8 s). When the tiles run on Dask (``defer``), the model is
+    loaded on a worker instead, as soon as that worker runs out of tiles (:func:`_warm_model`),
+    and the merged craters are scored there (:func:`_score_table`): the main process then
+    needs neither scikit-learn nor skops (loading them beside the tiles had put ~124 MB in the
+    main process during the workers' memory peak, over 2 GiB at 8192^2). A user's model file
+    gets cheap checks up front (:func:`_precheck_model`), so a missing or broken file still
+    stops the survey before any tile runs. ``seconds`` is the time spent loading here.
     """
 
     def __init__(self, model, *, defer: bool):
@@ -270,6 +364,7 @@ class _ScorerLoader:
         self._value = None
         self._error: BaseException | None = None
         self.seconds = 0.0
+        self.deferred = defer
         if defer:
             _precheck_model(model)
         else:
@@ -294,53 +389,82 @@ class _ScorerLoader:
 
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,
             started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None, pool: TilePool) -> SurveyResult:
+            footprint=None, pool: TilePool, spec: _ModelSpec | None = None, warm=None,
+            warm_population=None) -> SurveyResult:
     """Scaling, scoring, population statistics and provenance of the merged craters.
 
-    The population statistics depend only on positions and sizes, so they go to a Dask worker
-    (when the tiles ran on Dask) while this process loads the model and scores; serially they
-    run here after the scoring. ``pool`` is closed here, so its teardown counts as ``cluster``.
+    When the tiles ran on Dask, the scoring (with the model ``warm`` loaded on a worker while
+    the last tiles ran, from ``spec``) and the population statistics (positions and sizes
+    only) go to two workers, and this process imports neither scikit-learn nor skops;
+    serially both run here, with the model the ``loader`` read before the tiles. ``pool`` is
+    closed here, so its teardown counts as ``cluster``.
     """
     t_finish = time.perf_counter()
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
     footprint_src = valid_footprint(info) if footprint is None else footprint
-    population_job = None
+    on_workers = pool.client is not None and spec is not None
+    population_job = score_job = None
+    waited = 0.0  # for the model, in this process
+    timing["model_load"] = 0.0
     if len(df):
-        # Submitted first, so that a worker computes while this process imports and scores.
         cols = [c for c in _POPULATION_COLUMNS if c in df.columns]
-        population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
+        if on_workers:
+            t_wait = time.perf_counter()
+            try:
+                where, timing["model_load"] = warm.result() if warm is not None else (None, 0.0)
+            except Exception as err:  # noqa: BLE001 - the scoring task loads it again and reports
+                log.debug("loading the model on a worker failed: %s", err)
+                where = None
+            waited += time.perf_counter() - t_wait
+            score_job = pool.submit(_score_table, df, info.body, spec, workers=[where] if where else None)
+            try:
+                ready = warm_population.result() if warm_population is not None else None
+            except Exception:  # noqa: BLE001 - only a head start; the statistics import it anyway
+                ready = None
+            # On the worker that imported the statistics, even if it also holds the model:
+            # after the scoring (~1 s) there beats importing them afresh elsewhere (~2 s).
+            target = [ready] if ready else [w for w in pool.worker_addresses() if w != where]
+            log.debug("scoring on %s (model ready there: %s), statistics on %s (imports ready on %s)",
+                      where, where is not None, target, ready)
+            population_job = pool.submit(_population, df[cols], info, footprint_src, seed, workers=target or None)
+        else:
+            # Submitted first, so that a worker computes while this process imports and scores.
+            population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
     t_import = time.perf_counter()
     from ..outputs import run_provenance
-    from ..scaling import add_scaling_columns
-    from ..scoring import score_craters, training_domain_notes
+
+    if not on_workers:
+        from ..scaling import add_scaling_columns  # noqa: F401 - the finish stage's one-off imports
+        from ..scoring import score_craters  # noqa: F401
 
     # One-off imports of the finish stage's code are a fixed cost, like the tile code's.
     imported = time.perf_counter() - t_import
     timing["warmup"] = timing.get("warmup", 0.0) + imported
-    t_model = time.perf_counter()
-    fitted, model_path = loader.result()
-    waited = time.perf_counter() - t_model  # 0 when it was loaded before in-process tiles
-    timing["model_load"] = timing["model_wait"] = loader.seconds
+    if on_workers:
+        model_path = Path(spec.path)
+    else:
+        t_model = time.perf_counter()
+        fitted, model_path = loader.result()
+        waited += time.perf_counter() - t_model  # 0 when it was loaded before in-process tiles
+        timing["model_load"] = loader.seconds
     envelope = None
     if len(df):
         t0 = time.perf_counter()
-        df = add_scaling_columns(df, info.body)
-        scores = score_craters(df, fitted)
-        for col in scores.columns:
-            df[col] = scores[col].to_numpy()
-        # Outside the training domain the classifier extrapolates: flag it, claim neither.
-        notes = training_domain_notes(df, info.body)
-        df["scoring_domain"] = notes
-        outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
-        df.loc[outside, "verdict"] = "neither"
+        if on_workers:
+            df, loading = score_job.result()
+            # Loaded by the scoring task itself when the warm-up did not reach that worker.
+            timing["model_load"] += loading
+            waited += loading
+        else:
+            df = _apply_scores(df, info.body, fitted)
         t1 = time.perf_counter()
         pop, chains = population_job.result()
         log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
                  t1 - t0, time.perf_counter() - t1, len(df))
-        df["cluster_id"] = np.asarray(pop.cluster_id, dtype="int64")
-        df["chain_id"] = np.asarray(pop.chain_id, dtype="int64")
-        population = pop.stats
-        envelope = pop.envelope
+        df["cluster_id"] = pop["cluster_id"]
+        df["chain_id"] = pop["chain_id"]
+        population = pop["stats"]
+        envelope = pop["envelope"]
         craters = _geodataframe(df, info)
     else:
         craters = _empty_craters(info)
@@ -362,6 +486,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     pool.close()
     timing["cluster"] = timing.get("cluster", 0.0) + pool.seconds - before_close
     now = time.perf_counter()
+    timing["model_wait"] = waited if on_workers else loader.seconds
     timing["finish"] = now - t_finish - imported - waited - (pool.seconds - before_close)
     # Wall time of the stages (seconds; differs run to run, unlike every other value).
     caveats = run.pop("caveats")  # stays the last key
@@ -379,6 +504,17 @@ def _side_tasks(info: DemInfo) -> dict:
     on Dask it fills the time the last tiles leave a core idle instead of following them.
     """
     return {"footprint": (valid_footprint, (info,))}
+
+
+def _background_tasks(spec: _ModelSpec | None) -> dict:
+    """Loading the scoring model and the statistics' code on workers once they run out of tiles.
+
+    Collected by :func:`_finish`, which then scores and computes the statistics on those
+    workers side by side (only when the tiles ran on Dask).
+    """
+    if spec is None:
+        return {}
+    return {"model": (_warm_model, (spec,)), "population": (_warm_population, ())}
 
 
 def _run_timing(run) -> dict:
@@ -483,9 +619,11 @@ def survey(
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
+    spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(survey_tile, info, specs, (params,), run_dir=None if run_dir is None else Path(run_dir),
-                        resume=resume, progress=progress, side_tasks=_side_tasks(info), pool=pool)
+                        resume=resume, progress=progress, side_tasks=_side_tasks(info),
+                        background_tasks=_background_tasks(spec), pool=pool)
         log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
         t_merge = time.perf_counter()
         frames = [f for f in run.results if len(f)]
@@ -507,7 +645,8 @@ def survey(
         timing.update(_run_timing(run), merge=merge)
         return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
                        failed=run.failed, command="survey", timing=timing, footprint=run.side.get("footprint"),
-                       pool=pool)
+                       pool=pool, spec=spec, warm=run.background.get("model"),
+                       warm_population=run.background.get("population"))
 
 
 def measure(
@@ -570,9 +709,11 @@ def measure(
     unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
                   for c in craters.loc[~inside, "crater_id"]]
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
+    spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                        progress=progress, side_tasks=_side_tasks(info), pool=pool)
+                        progress=progress, side_tasks=_side_tasks(info), background_tasks=_background_tasks(spec),
+                        pool=pool)
         t_merge = time.perf_counter()
         frames = [f for f in run.results if len(f)]
         df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
@@ -594,4 +735,5 @@ def measure(
         return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
                        failed=run.failed, command="measure", timing=timing,
                        unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]),
-                       footprint=run.side.get("footprint"), pool=pool)
+                       footprint=run.side.get("footprint"), pool=pool, spec=spec, warm=run.background.get("model"),
+                       warm_population=run.background.get("population"))

@@ -13,7 +13,7 @@ and DataFrames out. One module per concept:
   :mod:`.contrast`: region against region; :mod:`.projection`: lon/lat to metres.
 """
 
-import importlib
+from .._lazy import lazy_attributes
 
 __all__ = ["PopulationResult", "population_statistics", "contrast_regions", "to_local_metric"]
 
@@ -23,13 +23,4 @@ _WHERE = {"PopulationResult": ".statistics", "population_statistics": ".statisti
           "contrast_regions": ".contrast", "to_local_metric": ".projection"}
 
 
-def __getattr__(name):
-    if name in _WHERE:
-        value = getattr(importlib.import_module(_WHERE[name], __name__), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
-
-def __dir__():
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_attributes(__name__, _WHERE, globals(), __all__)

@@ -18,19 +18,21 @@ build_training_set, train_model, evaluate_model
     Render craters with morpho.synth, measure them with morpho.morphometry, fit, evaluate.
 """
 
-from ._card import build_card, render_card_markdown, write_card
-from ._domain import training_domain_notes
-from ._estimator import ImpactSpotClassifier, log10_lr_from_p
-from ._metrics import RESOLUTION_BANDS, binary_metrics, expected_calibration_error, metrics_by_band
-from ._persistence import (
-    DEFAULT_MODEL_NAME,
-    FORMAT_VERSION,
-    TRUSTED_TYPES,
-    default_model_path,
-    load_model,
-    save_model,
-)
-from ._score import SCORE_COLUMNS, model_features, score_craters
+from .._lazy import lazy_attributes
+
+# Loaded on first use (PEP 562): a survey's main process asks only for the model's path and
+# scores on a Dask worker, so it need not import scikit-learn and skops at all.
+_WHERE = {
+    "build_card": "._card", "render_card_markdown": "._card", "write_card": "._card",
+    "training_domain_notes": "._domain",
+    "ImpactSpotClassifier": "._estimator", "log10_lr_from_p": "._estimator",
+    "RESOLUTION_BANDS": "._metrics", "binary_metrics": "._metrics",
+    "expected_calibration_error": "._metrics", "metrics_by_band": "._metrics",
+    "DEFAULT_MODEL_NAME": "._persistence", "FORMAT_VERSION": "._persistence",
+    "TRUSTED_TYPES": "._persistence", "default_model_path": "._persistence",
+    "load_model": "._persistence", "save_model": "._persistence",
+    "SCORE_COLUMNS": "._score", "model_features": "._score", "score_craters": "._score",
+}
 
 __all__ = [
     "ImpactSpotClassifier",
@@ -53,3 +55,6 @@ __all__ = [
     "expected_calibration_error",
     "metrics_by_band",
 ]
+
+
+__getattr__, __dir__ = lazy_attributes(__name__, _WHERE, globals(), __all__)
