@@ -206,6 +206,22 @@ def test_local_workers_start_with_the_retaining_malloc_settings():
     assert set(df["NUMPY_MADVISE_HUGEPAGE"]) == {"0"}
 
 
+def profiling_tile(_, spec):
+    """A tile that reports whether its Dask worker samples task stacks."""
+    import dask
+
+    return pd.DataFrame({"tile": [spec.key], "pid": [os.getpid()],
+                         "profile": [bool(dask.config.get("distributed.worker.profile.enabled"))]})
+
+
+@pytest.mark.slow
+def test_local_workers_do_not_profile_the_tiles():
+    run = run_tiles(profiling_tile, None, SPECS[:4], workers=2, progress=False)
+    df = pd.concat(run.results, ignore_index=True)
+    assert os.getpid() not in set(df["pid"])
+    assert not df["profile"].any()
+
+
 def _footprint_like(value):
     return {"area": value * 2}
 

@@ -280,6 +280,10 @@ class TilePool:
             # The nanny prefers this process's environment to its config (and copies what it
             # spawns with into it), so both are set while the workers start.
             environ = {f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in WORKER_ENVIRON.items()}
+            # The workers' statistical profiler samples the running task's stack every 10 ms for
+            # a dashboard we do not start; off, 16 tiles of 8192^2 on 2 workers took ~10 % less
+            # (34.9 -> 30.5 s and 36.8 -> 33.4 s in two A/B pairs).
+            environ["distributed.worker.profile.enabled"] = False
             with dask.config.set(environ), _environ(WORKER_ENVIRON):
                 self._cluster = LocalCluster(n_workers=self.n_workers, threads_per_worker=1, processes=True,
                                              dashboard_address=None)
