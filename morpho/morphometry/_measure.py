@@ -9,7 +9,7 @@ from ._degradation import degradation_columns
 from ._detrend import FLANK_EXPONENT, annulus_rings
 from ._features import azimuth_features, bowl_offset, crest_shape, profile_features
 from ._geometry import nanquantile_last, replicate_std
-from ._neighbours import neighbour_context, neighbour_mask, neighbour_pairs
+from ._neighbours import NeighbourPairs, neighbour_context, neighbour_mask, neighbour_pairs
 from ._refine import (
     MIN_COVERAGE,
     R_MAX,
@@ -76,17 +76,18 @@ class _Neighbours:
 
     def __init__(self, rows, cols, rad, enabled):
         self.rows, self.cols, self.rad = rows, cols, rad
-        self.pairs = neighbour_pairs(rows, cols, rad, R_MAX) if enabled else neighbour_pairs([], [], [], R_MAX)
+        self.pairs = neighbour_pairs(rows, cols, rad, R_MAX) if enabled else NeighbourPairs.none()
         self.context = neighbour_context(rad, self.pairs, rows.size)
 
     def mask(self, idx, n_azimuths):
-        """``(mask, cover)`` of batch ``idx`` on its profile grid."""
+        """``(mask, cover)`` of batch ``idx`` on its profile grid; mask None when it masks nothing."""
+        if not np.isin(self.pairs.i, idx).any():
+            return None, np.zeros(len(idx))
         az, r_norm = profile_grid(self.rad[idx], n_azimuths)
         return neighbour_mask(self.rows, self.cols, self.rad, self.pairs, idx, az, r_norm)
 
 
-def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body, masked=None):
-    mask, cover = masked if masked is not None else (None, np.zeros(rows.size))
+def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body, mask=None, cover=0.0):
     prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths, mask=mask)
     r_norm, az = prof.r_norm, prof.azimuths
     crest = find_inner_crest(zd, r_norm, FINAL_WINDOW)
@@ -233,13 +234,13 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         # Same columns and dtypes as a real result: measure one dummy crater, keep no rows.
         probe = _measure_chunk(np.zeros((16, 16)), np.array([8.0]), np.array([8.0]),
                                np.array([3.0]), np.array([1.0]), n_azimuths, boot_idx, body)
-        context = neighbour_context(np.zeros(0), neighbour_pairs([], [], [], R_MAX), 0)
+        context = neighbour_context(np.zeros(0), NeighbourPairs.none(), 0)
         return probe.iloc[:0].assign(**context, measure_status=pd.Series(dtype=object))
     near = _Neighbours(r0, c0, rad0, neighbours)
     parts = []
     for idx in radius_batches(rad0, chunk):
         part = _measure_chunk(z, r0[idx], c0[idx], rad0[idx], spacing[idx], n_azimuths,
-                              boot_idx, body, near.mask(idx, n_azimuths))
+                              boot_idx, body, *near.mask(idx, n_azimuths))
         part.index = idx
         parts.append(part)
     out = pd.concat(parts).sort_index()

@@ -46,6 +46,11 @@ class NeighbourPairs:
     j: np.ndarray
     distance: np.ndarray
 
+    @classmethod
+    def none(cls) -> NeighbourPairs:
+        """No pairs (a crater alone, or neighbours turned off)."""
+        return cls(np.zeros(0, int), np.zeros(0, int), np.zeros(0))
+
 
 def neighbour_pairs(rows, cols, radius_px, reach: float) -> NeighbourPairs:
     """All pairs whose neighbour disk (``NEIGHBOUR_DISK`` radii) reaches ``reach`` radii of the crater.
@@ -63,15 +68,14 @@ def neighbour_pairs(rows, cols, radius_px, reach: float) -> NeighbourPairs:
         ``distance < reach * R_i + NEIGHBOUR_DISK * R_j``, ``i != j``.
     """
     rows, cols, rad = (np.asarray(a, dtype=np.float64) for a in (rows, cols, radius_px))
-    empty = NeighbourPairs(np.zeros(0, int), np.zeros(0, int), np.zeros(0))
     if rows.size < 2:
-        return empty
+        return NeighbourPairs.none()
     tree = cKDTree(np.column_stack([rows, cols]))
     # One global search radius, then the exact per-pair condition.
     limit = float(reach * rad.max() + NEIGHBOUR_DISK * rad.max())
     pairs = tree.query_pairs(limit, output_type="ndarray")
     if pairs.size == 0:
-        return empty
+        return NeighbourPairs.none()
     i = np.concatenate([pairs[:, 0], pairs[:, 1]])
     j = np.concatenate([pairs[:, 1], pairs[:, 0]])
     d = np.hypot(rows[i] - rows[j], cols[i] - cols[j])

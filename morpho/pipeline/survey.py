@@ -389,13 +389,14 @@ class _ScorerLoader:
 
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,
             started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None, pool: TilePool, spec: _ModelSpec | None = None, warm=None,
-            warm_population=None) -> SurveyResult:
+            footprint=None, pool: TilePool, spec: _ModelSpec | None = None,
+            background: dict | None = None) -> SurveyResult:
     """Scaling, scoring, population statistics and provenance of the merged craters.
 
-    When the tiles ran on Dask, the scoring (with the model ``warm`` loaded on a worker while
-    the last tiles ran, from ``spec``) and the population statistics (positions and sizes
-    only) go to two workers, and this process imports neither scikit-learn nor skops;
+    When the tiles ran on Dask, the scoring (with the model of ``spec``, loaded on a worker
+    while the last tiles ran: ``background`` from :func:`_background_tasks`) and the population
+    statistics (positions and sizes only) go to two workers, and this process imports neither
+    scikit-learn nor skops;
     serially both run here, with the model the ``loader`` read before the tiles. ``pool`` is
     closed here, so its teardown counts as ``cluster``.
     """
@@ -403,6 +404,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
     footprint_src = valid_footprint(info) if footprint is None else footprint
     on_workers = pool.client is not None and spec is not None
+    warm, warm_population = ((background or {}).get(k) for k in ("model", "population"))
     population_job = score_job = None
     waited = 0.0  # for the model, in this process
     timing["model_load"] = 0.0
@@ -427,8 +429,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
             log.debug("scoring on %s (model ready there: %s), statistics on %s (imports ready on %s)",
                       where, where is not None, target, ready)
             population_job = pool.submit(_population, df[cols], info, footprint_src, seed, workers=target or None)
-        else:
-            # Submitted first, so that a worker computes while this process imports and scores.
+        else:  # in this process, when its result is asked for (after the scoring)
             population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
     t_import = time.perf_counter()
     from ..outputs import run_provenance
@@ -645,8 +646,7 @@ def survey(
         timing.update(_run_timing(run), merge=merge)
         return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
                        failed=run.failed, command="survey", timing=timing, footprint=run.side.get("footprint"),
-                       pool=pool, spec=spec, warm=run.background.get("model"),
-                       warm_population=run.background.get("population"))
+                       pool=pool, spec=spec, background=run.background)
 
 
 def measure(
@@ -735,5 +735,4 @@ def measure(
         return _finish(df, info, seed=seed, loader=loader, params=record, t_start=t_start, started=started,
                        failed=run.failed, command="measure", timing=timing,
                        unmeasured=pd.DataFrame(unmeasured, columns=["crater_id", "reason"]),
-                       footprint=run.side.get("footprint"), pool=pool, spec=spec, warm=run.background.get("model"),
-                       warm_population=run.background.get("population"))
+                       footprint=run.side.get("footprint"), pool=pool, spec=spec, background=run.background)
