@@ -142,6 +142,26 @@ def test_warm_modules_are_imported_before_any_tile_runs(tmp_path):
     assert len(run.results) == len(SPECS) and run.warmup_seconds >= 0
 
 
+_WARM_SCRIPT = """
+import numpy as np
+from morpho import shapes
+from morpho.pipeline.engine import _import_all
+from morpho.morphometry._degradation import _model_table
+from morpho.bodies import get_body
+_import_all(["morpho.morphometry"])
+warm = shapes._diffusion_modes.cache_info()
+_model_table(1000.0, get_body("moon"), np.linspace(0.0, 2.5, 101))
+print(warm.currsize, warm.misses, shapes._diffusion_modes.cache_info().misses)
+"""
+
+
+def test_morphometry_warm_up_computes_the_operator_the_degradation_tables_use():
+    # One miss at warm-up, none when the first table is built: the operator the warm-up
+    # computes is the one every table needs (same grid key), so the tiles do not pay for it.
+    out = subprocess.run([sys.executable, "-c", _WARM_SCRIPT], capture_output=True, text=True, check=True)
+    assert out.stdout.split() == ["1", "1", "1"]
+
+
 _REUSE_SCRIPT = """
 import resource, sys, threading
 import numpy as np

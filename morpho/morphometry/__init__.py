@@ -15,6 +15,7 @@ sample_radial_profiles, RadialProfiles
 """
 
 from ._degradation import fit_degradation
+from ._degradation import warm_up as _warm_up  # noqa: F401 - one-off set-up hook (pipeline.engine)
 from ._measure import measure_crater, measure_craters
 from ._refine import refine_craters
 from .profiles import RadialProfiles, sample_radial_profiles

@@ -29,6 +29,9 @@ FIT_RANGE = (0.0, 1.5)
 #: Relative width of the log-diameter bins sharing one model table (fresh d/D changes by
 #: < 1.5 % across a bin even on the complex branch, d ~ D^0.3).
 _BIN = 0.05
+#: Radii of the model profiles (crater radii), beyond the 5 R flank taper of morpho.shapes.
+_FINE = np.linspace(0.0, 6.0, 601)
+_FINE.setflags(write=False)
 
 
 def _model_table(diameter_m, body, r_norm):
@@ -39,7 +42,7 @@ def _model_table(diameter_m, body, r_norm):
     radius ``c`` (radii ``r_norm * c``, heights / ``c``), then levelled on the annulus like
     the data. Returns ``(table, c)`` with shapes (k, n_r) and (k,).
     """
-    fine = np.linspace(0.0, 6.0, 601)  # beyond the 5 R flank taper of morpho.shapes
+    fine = _FINE
     fresh = fresh_impact_profile(fine, diameter_m, body) / diameter_m
     # In radius units kappa t / R^2 = 4 kappa t / D^2.
     diffused = diffuse_radial_profile(fine, fresh, 4.0 * KT_GRID)
@@ -50,6 +53,15 @@ def _model_table(diameter_m, body, r_norm):
     crest = np.where(np.isfinite(crest), crest, 1.0)
     model = np.stack([np.interp(r_norm * c, fine, row) / c for row, c in zip(diffused, crest, strict=True)])
     return model - plain_level(model, r_norm)[:, None], crest
+
+
+def warm_up() -> None:
+    """Compute the diffusion operator every model table uses, once per process.
+
+    Its eigen-decomposition (1203 radii) takes 0.1-0.2 s whatever the DEM; a survey does it
+    while it sets up (imports), so that the tiles' time grows with their area only.
+    """
+    diffuse_radial_profile(_FINE, np.zeros_like(_FINE), 4.0 * KT_GRID)
 
 
 @lru_cache(maxsize=512)

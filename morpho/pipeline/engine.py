@@ -123,7 +123,8 @@ def run_tiles(
         raises stops the run (the cluster is closed, nothing more is saved).
     warm_modules : sequence of str
         Modules the tile function imports lazily; imported before the first tile (on every
-        worker when on Dask) so that their one-off import time is not counted as tile work.
+        worker when on Dask), and their ``_warm_up()`` hooks run, so that one-off set-up
+        (imports, constant tables) is not counted as tile work.
     side_tasks : mapping, optional
         ``name -> (func, args)``: independent work the caller needs after the tiles. On Dask it
         is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
@@ -208,9 +209,12 @@ def uses_dask(n_tiles: int, workers: int | None, scheduler: str | None) -> bool:
 
 
 def _import_all(modules) -> None:
-    """Import ``modules`` (run in this process, or on each Dask worker by ``client.run``)."""
+    """Import ``modules`` and run their ``_warm_up()`` hooks (in this process, or on each Dask
+    worker by ``client.run``): one-off set-up whose cost does not depend on the DEM."""
     for name in modules:
-        importlib.import_module(name)
+        hook = getattr(importlib.import_module(name), "_warm_up", None)
+        if callable(hook):
+            hook()
 
 
 def _run_one(func, first_arg, spec, extra_args):
@@ -235,7 +239,8 @@ class TilePool:
     scheduler : str, optional
         Address of an existing dask.distributed scheduler.
     warm_modules : sequence of str
-        Imported on every worker when the cluster starts (see :func:`run_tiles`).
+        Imported, with their ``_warm_up()`` hooks, on every worker when the cluster starts
+        (see :func:`run_tiles`).
 
     Attributes
     ----------
