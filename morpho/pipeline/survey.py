@@ -41,6 +41,11 @@ DEFAULT_TILE_SIZE = 2048
 TILE_MODULES = ("morpho.detection", "morpho.morphometry")
 #: Columns the population statistics read (sent to a Dask worker; see _finish).
 _POPULATION_COLUMNS = ("center_x", "center_y", "lon", "lat", "diameter_m", "ellipse_azimuth_deg", "ellipticity")
+#: CSR simulations of the population statistics' Monte Carlo tests (p >= 0.01).
+N_SIMULATIONS = 99
+#: On Dask, simulations the scoring worker measures after scoring (the rest and the observed
+#: pattern go to the other worker): scoring 2,646 craters takes about as long as 30 simulations.
+SIMULATIONS_BESIDE_SCORING = 33
 #: Largest crater searched by default on multi-tile DEMs (pixels); single-tile DEMs search up to the tile.
 DEFAULT_MAX_DIAMETER_PX = 256
 
@@ -193,13 +198,8 @@ def _chains_frame(records: list, lines: list, info: DemInfo) -> gpd.GeoDataFrame
     return gpd.GeoDataFrame(attrs, geometry=gpd.GeoSeries(lines, crs=crs), crs=crs)
 
 
-def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
-    """Population statistics on the merged table; chains mapped back to the DEM's CRS.
-
-    Returns ``({"stats", "envelope", "cluster_id", "chain_id"}, chains)``.
-    """
-    from ..population import population_statistics
-
+def _population_inputs(craters: pd.DataFrame, info: DemInfo, footprint_src):
+    """Centres (m), diameters (m) and the valid area in the local metric plane, and that plane's CRS."""
     x, y, origin = _metric_xy(craters, info)
     metric = _metric_crs(info, origin)
     if metric is not None and not footprint_src.is_empty:
@@ -207,10 +207,31 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int):
         area = shapely.transform(footprint_src, lambda xy: np.column_stack(to_m.transform(xy[:, 0], xy[:, 1])))
     else:
         area = footprint_src
+    return x, y, craters["diameter_m"].to_numpy(float), area, metric
+
+
+def _population_part(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int, start: int, stop):
+    """Measures of the CSR simulations ``start:stop`` of :func:`_population` (on another worker)."""
+    from ..population.statistics import simulated_measures
+
+    x, y, d, area, _ = _population_inputs(craters, info, footprint_src)
+    return simulated_measures(x, y, d, area, n_simulations=N_SIMULATIONS, seed=seed, start=start, stop=stop)
+
+
+def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int, *parts):
+    """Population statistics on the merged table; chains mapped back to the DEM's CRS.
+
+    ``parts``: the simulations' measures from :func:`_population_part`, in order, when they
+    were computed elsewhere. Returns ``({"stats", "envelope", "cluster_id", "chain_id"}, chains)``.
+    """
+    from ..population import population_statistics
+
+    x, y, d, area, metric = _population_inputs(craters, info, footprint_src)
     az = craters["ellipse_azimuth_deg"].to_numpy(float) if "ellipse_azimuth_deg" in craters else None
     ell = craters["ellipticity"].to_numpy(float) if "ellipticity" in craters else None
-    res = population_statistics(x, y, craters["diameter_m"].to_numpy(float), area,
-                                ellipse_azimuth_deg=az, ellipticity=ell, seed=seed)
+    simulated = [m for part in parts for m in part] if parts else None
+    res = population_statistics(x, y, d, area, ellipse_azimuth_deg=az, ellipticity=ell,
+                                n_simulations=N_SIMULATIONS, seed=seed, simulated=simulated)
     records = [dict(c) for c in (res.chains or [])]
     lines = [r.pop("geometry") for r in records]
     if metric is not None and lines:
@@ -428,7 +449,15 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
             target = [ready] if ready else [w for w in pool.worker_addresses() if w != where]
             log.debug("scoring on %s (model ready there: %s), statistics on %s (imports ready on %s)",
                       where, where is not None, target, ready)
-            population_job = pool.submit(_population, df[cols], info, footprint_src, seed, workers=target or None)
+            args = (df[cols], info, footprint_src, seed)
+            if where is not None and target and where not in target:
+                # The scoring worker takes the first simulations once it has scored; the other
+                # worker the rest, then puts the statistics together (same result as one call).
+                parts = (pool.submit(_population_part, *args, 0, SIMULATIONS_BESIDE_SCORING, workers=[where]),
+                         pool.submit(_population_part, *args, SIMULATIONS_BESIDE_SCORING, None, workers=target))
+            else:
+                parts = ()
+            population_job = pool.submit(_population, *args, *parts, workers=target or None)
         else:  # in this process, when its result is asked for (after the scoring)
             population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
     t_import = time.perf_counter()

@@ -31,7 +31,7 @@ from .sfd import (
 )
 from .superposition import SUPERPOSITION_REFERENCE, on_larger_rim
 
-__all__ = ["PopulationResult", "population_statistics", "STAT_COLUMNS", "ELONGATED"]
+__all__ = ["PopulationResult", "population_statistics", "simulated_measures", "STAT_COLUMNS", "ELONGATED"]
 
 STAT_COLUMNS = ("statistic", "value", "p_value", "n", "method", "reference")
 #: Craters with ellipticity (long/short axis) below this carry no usable azimuth.
@@ -130,9 +130,58 @@ def _spatial_measures(x, y, d, valid_area, radii, min_link, labels=False):
     }
 
 
+def _counted(x_m, y_m, diameter_m, valid_area, completeness_diameter_m, n_simulations):
+    """Validated inputs and the craters the statistics count (inside the area, >= completeness)."""
+    x, y, d = check_points(x_m, y_m, diameter_m, names=("x_m", "y_m", "diameter_m"))
+    valid_area = check_area(valid_area)
+    if int(n_simulations) < 1:
+        raise InputError(f"n_simulations must be >= 1, got {n_simulations}.",
+                         fix="use 99 (p >= 0.01) or 999 (p >= 0.001)")
+    if np.any(d <= 0):
+        raise InputError("diameter_m must be positive.", fix="drop craters without a measured diameter")
+    # centres outside the mask would meet an empty null: they are left out and counted
+    inside = shapely.intersects_xy(valid_area, x, y)
+    d_in = d[inside]
+    dc = estimate_completeness(d_in) if completeness_diameter_m is None else float(completeness_diameter_m)
+    keep = (d >= dc) & inside
+    return x, y, d, valid_area, inside, dc, keep
+
+
+def _null_setup(valid_area, n, n_simulations, seed):
+    """Radii, chain link length and the CSR patterns of the Monte Carlo tests (n >= 5 craters)."""
+    rng = np.random.default_rng(seed)
+    radii = default_radii(valid_area, n_points=n)
+    min_link = csr_mean_nn_distance(n / valid_area.area)
+    return radii, min_link, simulate_csr(valid_area, n, n_simulations, rng=rng)
+
+
+def simulated_measures(x_m, y_m, diameter_m, valid_area, *, completeness_diameter_m=None,
+                       n_simulations: int = 99, seed=0, start: int = 0, stop: int | None = None) -> list:
+    """The Monte Carlo part of :func:`population_statistics`, for simulations ``start:stop``.
+
+    The same arguments draw the same CSR patterns, so parts computed apart (e.g. on two
+    workers) and passed back as ``population_statistics(..., simulated=part_a + part_b)``
+    give exactly the result of one call. ``seed`` must then be an int (or equal-state
+    generators), as each call draws all the patterns afresh (cheap beside their measures).
+
+    Returns
+    -------
+    list of dict
+        One entry per simulation in ``start:stop``; empty when fewer than 5 craters count.
+    """
+    x, y, d, valid_area, _, _, keep = _counted(x_m, y_m, diameter_m, valid_area, completeness_diameter_m,
+                                               n_simulations)
+    n = int(keep.sum())
+    if n < 5:
+        return []
+    radii, min_link, sims = _null_setup(valid_area, n, n_simulations, seed)
+    ds = d[keep]
+    return [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims[start:stop]]
+
+
 def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_deg=None, ellipticity=None,
                           completeness_diameter_m=None, diameter_classes_m=None, n_simulations: int = 99,
-                          seed=0) -> PopulationResult:
+                          seed=0, simulated: list | None = None) -> PopulationResult:
     """Size-frequency, spatial-randomness, clustering, alignment and superposition statistics.
 
     Statistics use the craters at or above the completeness diameter; p-values of the
@@ -161,6 +210,9 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         CSR simulations for the Monte Carlo tests (99 gives p >= 0.01).
     seed : int or numpy.random.Generator
         Randomness of the simulations.
+    simulated : list of dict, optional
+        The simulations' measures from :func:`simulated_measures` with the same arguments
+        (all ``n_simulations`` of them, in order), computed elsewhere; default: computed here.
 
     Returns
     -------
@@ -181,20 +233,11 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
     >>> 0.85 < res.stat("clark_evans_R") < 1.15
     True
     """
-    x, y, d = check_points(x_m, y_m, diameter_m, names=("x_m", "y_m", "diameter_m"))
-    valid_area = check_area(valid_area)
-    if int(n_simulations) < 1:
-        raise InputError(f"n_simulations must be >= 1, got {n_simulations}.",
-                         fix="use 99 (p >= 0.01) or 999 (p >= 0.001)")
-    if np.any(d <= 0):
-        raise InputError("diameter_m must be positive.", fix="drop craters without a measured diameter")
+    x, y, d, valid_area, inside, dc, keep = _counted(x_m, y_m, diameter_m, valid_area, completeness_diameter_m,
+                                                     n_simulations)
     n_all = x.size
     area = valid_area.area
-    # centres outside the mask would meet an empty null: they are left out and counted
-    inside = shapely.intersects_xy(valid_area, x, y)
     d_in = d[inside]
-    dc = estimate_completeness(d_in) if completeness_diameter_m is None else float(completeness_diameter_m)
-    keep = (d >= dc) & inside
     xs, ys, ds = x[keep], y[keep], d[keep]
     n = xs.size
     rows = []
@@ -242,12 +285,15 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
     chains: list = []
     envelope = pd.DataFrame()
     if n >= 5:
-        rng = np.random.default_rng(seed)
-        radii = default_radii(valid_area, n_points=n)
-        min_link = csr_mean_nn_distance(n / area)
+        radii, min_link, sims = _null_setup(valid_area, n, n_simulations, seed)
         obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link, labels=True)
-        sims = simulate_csr(valid_area, n, n_simulations, rng=rng)
-        sim = [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims]
+        if simulated is None:
+            sim = [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims]
+        elif len(simulated) == len(sims):
+            sim = list(simulated)
+        else:
+            raise InputError(f"simulated holds {len(simulated)} measures for {len(sims)} simulations.",
+                             fix="pass every part of simulated_measures with the same arguments, in order")
         l_sim = np.array([s["L"] for s in sim])
         with warnings.catch_warnings():
             # radii no point reaches inside the mask are NaN throughout; they stay NaN
