@@ -83,3 +83,15 @@ def test_dome_and_flat_cylinder_are_neither(model):
                      d_px)
     s = score_craters(feats, model)
     assert list(s["verdict"]) == ["neither", "neither"], s
+
+
+def test_documented_rebuild_command_is_the_one_the_shipped_card_records():
+    # Reproducibility (the model card's own record): the command the docs give must rebuild
+    # the shipped model, i.e. be the card's rebuild_command verbatim (seed and sizes included).
+    import json
+    from pathlib import Path
+
+    card = json.loads(default_model_path().with_suffix(".card.json").read_text())
+    root = Path(__file__).resolve().parents[1]
+    for doc in ("models/README.md", "DEVELOPERS.md"):
+        assert card["rebuild_command"] in (root / doc).read_text(), doc
