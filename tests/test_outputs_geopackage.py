@@ -13,6 +13,7 @@ import xml.etree.ElementTree as ET
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+import pyogrio
 import pytest
 import shapely
 from geopandas.testing import assert_geodataframe_equal
@@ -158,6 +159,25 @@ def test_interrupted_write_leaves_no_file(tmp_path, craters, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         _write(tmp_path / "o.gpkg", craters)
     assert list(tmp_path.iterdir()) == []  # no target, no temporary leftovers
+
+
+def test_unflushed_sqlite_setting_is_scoped_to_the_write_even_when_interrupted(tmp_path, craters, monkeypatch):
+    # GDAL configuration option OGR_SQLITE_SYNCHRONOUS (GDAL SQLite/GPKG driver docs): the
+    # writer turns the per-transaction flush off for its temporary file only; the user's
+    # setting is back afterwards, whether the write completed or not.
+    pyogrio.set_gdal_config_options({"OGR_SQLITE_SYNCHRONOUS": "NORMAL"})
+    try:
+        _write(tmp_path / "a.gpkg", craters)
+        assert pyogrio.get_gdal_config_option("OGR_SQLITE_SYNCHRONOUS") == "NORMAL"
+        _interrupt_at(monkeypatch, "chains")
+        with pytest.raises(KeyboardInterrupt):
+            _write(tmp_path / "b.gpkg", craters)
+        assert pyogrio.get_gdal_config_option("OGR_SQLITE_SYNCHRONOUS") == "NORMAL"
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_SQLITE_SYNCHRONOUS": None})
+    assert pyogrio.get_gdal_config_option("OGR_SQLITE_SYNCHRONOUS") is None
+    with sqlite3.connect(tmp_path / "a.gpkg") as con:
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
 
 
 def test_interrupted_overwrite_keeps_the_old_file(tmp_path, craters, monkeypatch):
