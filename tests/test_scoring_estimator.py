@@ -16,3 +16,21 @@ from morpho.scoring import ImpactSpotClassifier
 @parametrize_with_checks([ImpactSpotClassifier(impact_label=None, max_iter=20, random_state=0)])
 def test_sklearn_estimator_checks(estimator, check):
     check(estimator)
+
+
+def test_scoring_methods_run_with_one_openmp_thread():
+    # threadpoolctl (the reference for native thread pools): inside a scoring method every
+    # OpenMP runtime scikit-learn loaded reports one thread, and the limit is lifted after.
+    import sklearn.ensemble  # noqa: F401 - loads scikit-learn's OpenMP runtime
+    from threadpoolctl import threadpool_info
+
+    from morpho.scoring._estimator import _single_thread
+
+    def openmp():
+        return [p["num_threads"] for p in threadpool_info() if p["user_api"] == "openmp"]
+
+    before = openmp()
+    inside = _single_thread(openmp)()
+    assert inside and set(inside) == {1}
+    assert openmp() == before  # restored to what it was
+    assert _single_thread(lambda: 7)() == 7

@@ -27,7 +27,7 @@ from sklearn.utils import check_random_state
 from sklearn.utils.class_weight import compute_sample_weight
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 from . import _typicality as typ
 
@@ -51,10 +51,18 @@ def _single_thread(method):
 
     @functools.wraps(method)
     def wrapper(*args, **kwargs):
-        with threadpool_limits(limits=1, user_api="openmp"):
+        with _threadpools().limit(limits=1, user_api="openmp"):
             return method(*args, **kwargs)
 
     return wrapper
+
+
+@functools.cache
+def _threadpools() -> ThreadpoolController:
+    """The process's thread pools, inspected once (3 ms per look at the loaded libraries; a
+    scoring call makes several). scikit-learn's OpenMP runtime is loaded by the time a fitted
+    estimator's method runs, so the snapshot holds it."""
+    return ThreadpoolController()
 
 
 def _balanced_weights(labels):
