@@ -142,6 +142,30 @@ def test_warm_modules_are_imported_before_any_tile_runs(tmp_path):
     assert len(run.results) == len(SPECS) and run.warmup_seconds >= 0
 
 
+_LOCAL_SCRIPT = """
+import sys
+import pandas as pd
+from morpho.ingest import plan_windows
+from morpho.pipeline import run_tiles
+
+def tile(seed, spec):
+    return pd.DataFrame({"v": [seed + spec.index]})
+
+if __name__ == "__main__":
+    assert "colorsys" not in sys.modules
+    run = run_tiles(tile, 1, plan_windows(200, 200, 100, 10), workers=2, local_modules=("colorsys",), progress=False)
+    print(len(run.results), "colorsys" in sys.modules, run.warmup_seconds)
+"""
+
+
+def test_local_modules_are_imported_here_while_dask_workers_run_the_tiles(tmp_path):
+    # The merge's imports would otherwise land after the last tile (scipy.spatial: ~0.35 s).
+    script = tmp_path / "local_modules.py"
+    script.write_text(_LOCAL_SCRIPT)
+    out = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, check=True, timeout=300)
+    assert out.stdout.split() == ["4", "True", "0.0"]  # 4 tiles on Dask; no serial warm-up
+
+
 _WARM_SCRIPT = """
 import numpy as np
 from morpho import shapes

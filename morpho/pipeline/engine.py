@@ -93,6 +93,7 @@ def run_tiles(
     progress: bool = True,
     before_first: Callable[[], None] | None = None,
     warm_modules: Sequence[str] = (),
+    local_modules: Sequence[str] = (),
     side_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
     background_tasks: Mapping[str, tuple[Callable, tuple]] | None = None,
     pool: TilePool | None = None,
@@ -125,6 +126,11 @@ def run_tiles(
         Modules the tile function imports lazily; imported before the first tile (on every
         worker when on Dask), and their ``_warm_up()`` hooks run, so that one-off set-up
         (imports, constant tables) is not counted as tile work.
+    local_modules : sequence of str
+        Modules this process needs after the tiles (to merge and finish their results). On
+        Dask they are imported here once the tiles are submitted, while the workers run them
+        (this process would otherwise import them after the last tile, on the critical path);
+        serially with ``warm_modules``.
     side_tasks : mapping, optional
         ``name -> (func, args)``: independent work the caller needs after the tiles. On Dask it
         is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
@@ -179,7 +185,7 @@ def run_tiles(
     try:
         if todo and not pool.would_use_dask(len(todo)):
             t_warm = time.perf_counter()
-            _import_all(pool.warm_modules)
+            _import_all((*pool.warm_modules, *local_modules))
             run.warmup_seconds = time.perf_counter() - t_warm
             for spec in todo:
                 try:
@@ -191,7 +197,7 @@ def run_tiles(
         elif todo:
             pool.start()
             _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
-                      dict(background_tasks or {}), run.background)
+                      dict(background_tasks or {}), run.background, local_modules)
     finally:
         if own:
             pool.close()
@@ -363,7 +369,7 @@ class _Local:
 
 
 def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, side=None,
-              background_tasks=None, background=None) -> None:
+              background_tasks=None, background=None, local_modules=()) -> None:
     """Run the tiles (and side tasks) on a started pool's Dask client, recording each tile as it completes."""
     from dask.distributed import as_completed
 
@@ -379,6 +385,8 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
     extra = {pool.submit(f, *args): name for name, (f, args) in (side_tasks or {}).items()}
     for name, (f, args) in (background_tasks or {}).items():
         background[name] = pool.submit(f, *args)
+    # This process is idle while the workers run the tiles: its own one-off imports go here.
+    _import_all(local_modules)
     for fut in as_completed(list(futures) + list(extra)):
         if fut in extra:
             try:

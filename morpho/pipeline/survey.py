@@ -39,6 +39,9 @@ log = logging.getLogger(__name__)
 DEFAULT_TILE_SIZE = 2048
 #: Modules the tile jobs import lazily: imported before the first tile (a fixed cost, not tile work).
 TILE_MODULES = ("morpho.detection", "morpho.morphometry")
+#: What this process needs after the tiles: the merge's KD-tree (~0.35 s to import when no tile
+#: ran here) and the provenance writer.
+MERGE_MODULES = ("scipy.spatial", "morpho.outputs")
 #: Columns the population statistics read (sent to a Dask worker; see _finish).
 _POPULATION_COLUMNS = ("center_x", "center_y", "lon", "lat", "diameter_m", "ellipse_azimuth_deg", "ellipticity")
 #: CSR simulations of the population statistics' Monte Carlo tests (p >= 0.01).
@@ -652,8 +655,8 @@ def survey(
     spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(survey_tile, info, specs, (params,), run_dir=None if run_dir is None else Path(run_dir),
-                        resume=resume, progress=progress, side_tasks=_side_tasks(info),
-                        background_tasks=_background_tasks(spec), pool=pool)
+                        resume=resume, progress=progress, local_modules=MERGE_MODULES,
+                        side_tasks=_side_tasks(info), background_tasks=_background_tasks(spec), pool=pool)
         log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
         t_merge = time.perf_counter()
         frames = [f for f in run.results if len(f)]
@@ -741,8 +744,8 @@ def measure(
     spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                        progress=progress, side_tasks=_side_tasks(info), background_tasks=_background_tasks(spec),
-                        pool=pool)
+                        progress=progress, local_modules=MERGE_MODULES, side_tasks=_side_tasks(info),
+                        background_tasks=_background_tasks(spec), pool=pool)
         t_merge = time.perf_counter()
         frames = [f for f in run.results if len(f)]
         df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
