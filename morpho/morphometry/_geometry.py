@@ -210,8 +210,61 @@ def harmonic_amplitudes(theta, values, kmax, w=None):
     return np.concatenate([mean[..., None], 2.0 * np.hypot(c, s)], -1)
 
 
+def _sort_valid(values):
+    """``(order, sorted values, finite mask)`` along the last axis; NaN and infinities last."""
+    order = np.argsort(np.where(np.isfinite(values), values, np.inf), axis=-1)
+    srt = np.take_along_axis(values, order, -1)
+    return order, srt, np.isfinite(srt)
+
+
+def _sorted_cumweights(order, ok, w):
+    """Running sums of the weights along the sorted values, and their totals.
+
+    The sums, shape (m + 1, n, b) with row 0 zero, are laid out (position, crater,
+    replicate) so that each step is one contiguous vector addition; the additions are made
+    one position at a time, left to right, as ``np.cumsum`` makes them, so every partial
+    sum is the float it gives. Counts (:func:`_exact_counts`) are summed as the narrowest
+    integers that hold their totals: the same sums, exact either way, in a fraction of the
+    memory. The totals, shape (n, b), are in the float type of the weights (as the sums
+    would be), so that thresholds made from them round alike.
+    """
+    n, m = order.shape
+    dtype = total_dtype = np.result_type(w, 0.0)
+    if _exact_counts(w):
+        top = w.sum(-1).max(initial=0)
+        dtype = next((t for t in (np.int8, np.int16, np.int32) if top <= np.iinfo(t).max), dtype)
+    wt = np.zeros((m + 1, w.shape[0]), dtype=dtype)
+    wt[1:] = w.T
+    rows = np.zeros((m + 1, n), dtype=np.intp)  # row 0 of wt: invalid values weigh 0
+    rows[1:] = np.where(ok, order + 1, 0).T
+    cum = _accumulate_rows(wt[rows])
+    return cum, cum[-1].astype(total_dtype, copy=False)
+
+
+def _accumulate_rows(a):
+    """Running sum along axis 0, in place, one row at a time (as ``np.cumsum``, faster)."""
+    for j in range(1, a.shape[0]):
+        np.add(a[j - 1], a[j], out=a[j])
+    return a
+
+
+def _first_reaching(cum, thr):
+    """First sorted position ``j`` with ``cum[j + 1] >= thr``; 0 where none (as ``argmax``)."""
+    below = np.ones(thr.shape, dtype=bool)
+    idx = np.zeros(thr.shape, dtype=np.intp)
+    for c in cum[1:]:
+        below &= ~(c >= thr)  # not ``c < thr``: a NaN sum must not end the search
+        idx += below
+    return np.where(idx == cum.shape[0] - 1, 0, idx)
+
+
 def wquantile(values, q, w=None):
     """Weighted quantile (inverted empirical CDF) along the azimuth axis, ignoring NaN.
+
+    The smallest finite value whose cumulative weight, in increasing order of the values,
+    reaches ``q`` times the total (to 1e-9); NaN where no finite value carries weight. The
+    values are sorted once per crater; only the running sums of the weights differ between
+    replicates.
 
     Parameters
     ----------
@@ -225,15 +278,12 @@ def wquantile(values, q, w=None):
     -------
     ndarray, shape (n,) or (n, b)
     """
-    order = np.argsort(np.where(np.isfinite(values), values, np.inf), axis=-1)
-    srt = np.take_along_axis(values, order, -1)
-    ok = np.isfinite(srt)
+    order, srt, ok = _sort_valid(values)
     if w is None:
-        ws = ok.astype(float)
-    else:
-        ws = np.where(ok[:, None, :], w[:, order].transpose(1, 0, 2), 0.0)  # (n, b, m)
-        srt = srt[:, None, :]
-    return _pick_quantile(np.broadcast_to(srt, ws.shape), ws, q)
+        return _pick_quantile(srt, ok.astype(float), q)
+    cum, total = _sorted_cumweights(order, ok, np.asarray(w))
+    out = np.take_along_axis(srt, _first_reaching(cum, q * total - 1e-9), -1)
+    return np.where(total > 0, out, np.nan)
 
 
 def _pick_quantile(srt, ws, q):
@@ -245,12 +295,92 @@ def _pick_quantile(srt, ws, q):
     return np.where(total[..., 0] > 0, out, np.nan)
 
 
+def _exact_counts(w):
+    """Whether ``w`` holds counts whose float64 sums are exact in any order of addition."""
+    if np.result_type(w, 0.0) != np.float64:
+        return False
+    wf = w.astype(np.float64)
+    ok = np.isfinite(wf) & (wf >= 0) & (wf == np.floor(wf))
+    return bool(ok.all()) and float(wf.sum(-1).max(initial=0.0)) <= 2.0 ** 52
+
+
+def _mad_from_sorted(srt, ok, cum, pos, total):
+    """Weighted median absolute deviation about ``srt[pos]``, shape (n, b); None if overflow.
+
+    For counts only (sums exact in any order) and float64 values. About a median at sorted
+    position ``p`` the deviations grow away from ``p`` on both sides, so the values within
+    a deviation ``d`` form a window of sorted positions, whose weight is a difference of two
+    running sums. The windows depend on a replicate only through ``p``: the deviations are
+    ordered once per distinct (crater, ``p``), and each replicate's answer, the smallest
+    deviation whose window holds half the weight, is found by bisection along that order.
+    """
+    n, m = srt.shape
+    has = total > 0
+    crater = np.broadcast_to(np.arange(n)[:, None], pos.shape)[has]
+    key = crater * m + pos[has]
+    mark = np.zeros(n * m, dtype=bool)
+    mark[key] = True
+    pair = np.cumsum(mark)[key] - 1
+    pn, pp = np.divmod(np.flatnonzero(mark), m)
+    dev = srt[pn]
+    med = dev[np.arange(pn.size), pp][:, None]
+    np.abs(np.subtract(dev, med, out=dev), out=dev)  # |v - median|, the oracle's expression
+    valid = ok[pn]
+    if not np.isfinite(dev[valid]).all():  # |v - median| overflowed: the oracle drops v
+        return None
+    # Sort keys: the bits of a non-negative float order as the float does; the spare low
+    # bit tells the side of the median (1 = below), so a plain (vectorised) sort gives the
+    # order of the deviations and how many of the first k come from below.
+    bits = np.left_shift(dev.view(np.uint64), np.uint64(1), out=dev.view(np.uint64))
+    bits |= np.arange(m) < pp[:, None]
+    bits[~valid] = np.iinfo(np.uint64).max
+    bits.sort(axis=-1)
+    below = np.empty((m, pn.size), dtype=np.int16 if m < 2 ** 15 else np.intp)
+    np.bitwise_and(bits.T, np.uint64(1), out=below, casting="unsafe")
+    below = _accumulate_rows(below).ravel()
+    # The first k + 1 deviations cover the sorted positions [p - b_k, p + k - b_k]
+    # (b_k = how many lie below p); every value in there deviates by at most the k-th, and
+    # once all of the k-th's ties are in, the window is every value within that deviation.
+    # Its weight grows with k; the first k where it reaches half the total gives the MAD.
+    flat = cum.reshape(-1)
+    col = np.flatnonzero(has)
+    ncol = has.size
+    start = pos[has] * ncol + col  # flat index of cum[p] (n, b) for each replicate
+    thr = (0.5 * total - 1e-9)[has]
+    lo = np.zeros(col.size, dtype=np.intp)
+    hi = ok.sum(-1)[crater] - 1
+    for _ in range((m - 1).bit_length()):
+        mid = (lo + hi) >> 1
+        nb = below[mid * pn.size + pair].astype(np.intp)
+        reach = flat[start + (mid + 1 - nb) * ncol] - flat[start - nb * ncol] >= thr
+        hi = np.where(reach, mid, hi)
+        lo = np.where(reach, lo, mid + 1)
+    mad = np.full(pos.shape, np.nan)
+    mad[has] = (bits[pair, lo] >> np.uint64(1)).view(np.float64)
+    return mad
+
+
+def _mad_by_sorting(values, med, w):
+    """Weighted MAD for any weights: every replicate's deviations sorted, shape (n, b).
+
+    Non-integer weights sum to different last bits in different orders, so the deviations
+    are ordered exactly as before (same sort, same ties) to keep every result.
+    """
+    dev = np.abs(values[:, None, :] - med[..., None])  # (n, b, m)
+    order, dsrt, ok = _sort_valid(dev)
+    ws = np.take_along_axis(np.broadcast_to(w, dev.shape), order, -1)
+    return _pick_quantile(dsrt, np.where(ok, ws, 0.0), 0.5)
+
+
 def wmad_relative(values, w=None):
     """Robust relative spread ``1.4826 MAD / median`` along the azimuth axis, NaN ignored.
 
     The median absolute deviation ignores a minority of disturbed azimuths (a neighbour's
     rim, a gap), so the spread stays that of the crater itself (Rousseeuw & Croux 1993,
-    JASA 88:1273; 1.4826 makes it the standard deviation for normal data).
+    JASA 88:1273; 1.4826 makes it the standard deviation for normal data). Median and MAD
+    are weighted medians as in :func:`wquantile`. With count weights (bootstrap) the MAD
+    comes from windows of the sorted values about the median, without sorting the
+    deviations of every replicate; other weights sort them.
 
     Parameters
     ----------
@@ -263,15 +393,20 @@ def wmad_relative(values, w=None):
     ndarray, shape (n,) or (n, b)
         NaN where the median is not positive.
     """
-    med = wquantile(values, 0.5, w)
     if w is None:
+        med = wquantile(values, 0.5)
         mad = wquantile(np.abs(values - med[:, None]), 0.5)
     else:
-        dev = np.abs(values[:, None, :] - med[..., None])  # (n, b, m)
-        order = np.argsort(np.where(np.isfinite(dev), dev, np.inf), axis=-1)
-        srt = np.take_along_axis(dev, order, -1)
-        ws = np.where(np.isfinite(srt), np.take_along_axis(np.broadcast_to(w, dev.shape), order, -1), 0.0)
-        mad = _pick_quantile(srt, ws, 0.5)
+        w = np.asarray(w)
+        order, srt, ok = _sort_valid(values)
+        cum, total = _sorted_cumweights(order, ok, w)
+        pos = _first_reaching(cum, 0.5 * total - 1e-9)
+        med = np.where(total > 0, np.take_along_axis(srt, pos, -1), np.nan)
+        mad = None
+        if srt.dtype == np.float64 and cum.dtype.kind == "i":  # counts (exact sums)
+            mad = _mad_from_sorted(srt, ok, cum, pos, total)
+        if mad is None:
+            mad = _mad_by_sorting(values, med, w)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(med > 0, 1.4826 * mad / med, np.nan)
 
