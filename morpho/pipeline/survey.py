@@ -243,7 +243,7 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int, 
                  for g in lines]
     chains = _chains_frame(records, lines, info)
     # Plain pandas/numpy only: unpickling a PopulationResult would import the statistics
-    # (and scikit-learn) into the main process just to read four fields.
+    # (and scipy.stats) into the main process just to read four fields.
     return {"stats": res.stats, "envelope": res.envelope, "cluster_id": np.asarray(res.cluster_id, dtype="int64"),
             "chain_id": np.asarray(res.chain_id, dtype="int64")}, chains
 

@@ -6,7 +6,6 @@ import numpy as np
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
-from sklearn.cluster import DBSCAN
 
 from .nearest_neighbour import csr_mean_nn_distance
 
@@ -52,10 +51,52 @@ def dbscan_clusters(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
     """
     xy = np.column_stack([np.asarray(x_m, float), np.asarray(y_m, float)])
     n = len(xy)
+    labels = np.full(n, -1, dtype=np.int64)
     if n < min_samples:
-        return np.full(n, -1, dtype=np.int64)
+        return labels
     eps = default_eps(n, area_m2) if eps_m is None else float(eps_m)
-    return DBSCAN(eps=eps, min_samples=min_samples).fit_predict(xy).astype(np.int64)
+    pairs, core, n_clusters, component = _partition(xy, eps, min_samples)
+    if n_clusters == 0:
+        return labels
+    idx = np.flatnonzero(core)
+    # Ester et al.'s algorithm (as scikit-learn runs it) grows clusters in the order of their
+    # lowest-index core point, and a border point joins the first cluster that reaches it:
+    # number the components by their lowest core index, give each border point the lowest.
+    first = np.full(n_clusters, n)
+    np.minimum.at(first, component, idx)
+    rank = np.empty(n_clusters, dtype=np.int64)
+    rank[np.argsort(first)] = np.arange(n_clusters)
+    labels[idx] = rank[component]
+    one = core[pairs[:, 0]] ^ core[pairs[:, 1]]
+    c_end = np.where(core[pairs[one, 0]], pairs[one, 0], pairs[one, 1])
+    b_end = np.where(core[pairs[one, 0]], pairs[one, 1], pairs[one, 0])
+    best = np.full(n, np.iinfo(np.int64).max)
+    np.minimum.at(best, b_end, labels[c_end])
+    border = best < np.iinfo(np.int64).max
+    labels[border] = best[border]
+    return labels
+
+
+def _partition(xy, eps, min_samples):
+    """Pairs within ``eps``, core points, and the connected components of the core points.
+
+    Returns ``(pairs, core, n_clusters, component)``; ``component`` labels the core points
+    in index order (scipy's numbering, not the clusters' order).
+    """
+    n = len(xy)
+    pairs = cKDTree(xy).query_pairs(eps, output_type="ndarray")
+    # a point's neighbourhood includes the point itself, as in scikit-learn
+    count = 1 + np.bincount(pairs.ravel(), minlength=n)
+    core = count >= min_samples
+    idx = np.flatnonzero(core)
+    if idx.size == 0:
+        return pairs, core, 0, np.zeros(0, dtype=np.int64)
+    pos = np.full(n, -1)
+    pos[idx] = np.arange(idx.size)
+    cp = pairs[core[pairs[:, 0]] & core[pairs[:, 1]]]
+    graph = coo_matrix((np.ones(len(cp)), (pos[cp[:, 0]], pos[cp[:, 1]])), shape=(idx.size, idx.size))
+    n_clusters, component = connected_components(graph, directed=False)
+    return pairs, core, int(n_clusters), component.astype(np.int64)
 
 
 def dbscan_counts(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
@@ -80,20 +121,10 @@ def dbscan_counts(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
     if n < min_samples:
         return 0, 0.0
     eps = default_eps(n, area_m2) if eps_m is None else float(eps_m)
-    pairs = cKDTree(xy).query_pairs(eps, output_type="ndarray")
-    # a point's neighbourhood includes the point itself, as in scikit-learn
-    count = 1 + np.bincount(pairs.ravel(), minlength=n)
-    core = count >= min_samples
-    both = core[pairs[:, 0]] & core[pairs[:, 1]]
+    pairs, core, n_clusters, _ = _partition(xy, eps, min_samples)
+    if n_clusters == 0:
+        return 0, 0.0
     one = core[pairs[:, 0]] ^ core[pairs[:, 1]]
     border = np.zeros(n, bool)
     border[np.where(core[pairs[one, 0]], pairs[one, 1], pairs[one, 0])] = True
-    idx = np.flatnonzero(core)
-    if idx.size == 0:
-        return 0, 0.0
-    pos = np.full(n, -1)
-    pos[idx] = np.arange(idx.size)
-    cp = pairs[both]
-    graph = coo_matrix((np.ones(len(cp)), (pos[cp[:, 0]], pos[cp[:, 1]])), shape=(idx.size, idx.size))
-    n_clusters, _ = connected_components(graph, directed=False)
-    return int(n_clusters), float((core | border).sum() / n)
+    return n_clusters, float((core | border).sum() / n)
