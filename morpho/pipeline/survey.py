@@ -47,8 +47,9 @@ _POPULATION_COLUMNS = ("center_x", "center_y", "lon", "lat", "diameter_m", "elli
 #: CSR simulations of the population statistics' Monte Carlo tests (p >= 0.01).
 N_SIMULATIONS = 99
 #: On Dask, simulations the scoring worker measures after scoring (the rest and the observed
-#: pattern go to the other worker): scoring 2,646 craters takes about as long as 30 simulations.
-SIMULATIONS_BESIDE_SCORING = 33
+#: pattern go to the other worker). Task streams of the 8192^2 benchmark survey (2,646 craters):
+#: scoring 0.84-1.26 s, one simulation ~28 ms on either worker, so 30 of 99 even them out.
+SIMULATIONS_BESIDE_SCORING = 30
 #: Largest crater searched by default on multi-tile DEMs (pixels); single-tile DEMs search up to the tile.
 DEFAULT_MAX_DIAMETER_PX = 256
 
@@ -246,6 +247,28 @@ def _population(craters: pd.DataFrame, info: DemInfo, footprint_src, seed: int, 
     # (and scipy.stats) into the main process just to read four fields.
     return {"stats": res.stats, "envelope": res.envelope, "cluster_id": np.asarray(res.cluster_id, dtype="int64"),
             "chain_id": np.asarray(res.chain_id, dtype="int64")}, chains
+
+
+class _SplitPopulation:
+    """The population statistics on two Dask workers, as one job with ``result()``.
+
+    The statistics worker (``target``) starts on the later simulations at once; the scoring
+    worker (``where``) takes the first ``SIMULATIONS_BESIDE_SCORING`` once it has scored,
+    which the caller signals by asking for the result (after the scores). Submitted only
+    then, those simulations go to the idle scoring worker even though Dask may move a task
+    off its preferred worker; queued early, they ran behind the others on the statistics
+    worker (a task stream showed it). The statistics worker then puts everything together:
+    the same result as one call (:func:`~morpho.population.statistics.simulated_measures`).
+    """
+
+    def __init__(self, pool, args, where, target):
+        self._pool, self._args, self._where, self._target = pool, args, where, target
+        self._tail = pool.submit(_population_part, *args, SIMULATIONS_BESIDE_SCORING, None, workers=target)
+
+    def result(self):
+        head = self._pool.submit(_population_part, *self._args, 0, SIMULATIONS_BESIDE_SCORING,
+                                 workers=[self._where])
+        return self._pool.submit(_population, *self._args, head, self._tail, workers=self._target).result()
 
 
 def _load_scorer(model):
@@ -454,13 +477,9 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
                       where, where is not None, target, ready)
             args = (df[cols], info, footprint_src, seed)
             if where is not None and target and where not in target:
-                # The scoring worker takes the first simulations once it has scored; the other
-                # worker the rest, then puts the statistics together (same result as one call).
-                parts = (pool.submit(_population_part, *args, 0, SIMULATIONS_BESIDE_SCORING, workers=[where]),
-                         pool.submit(_population_part, *args, SIMULATIONS_BESIDE_SCORING, None, workers=target))
+                population_job = _SplitPopulation(pool, args, where, target)
             else:
-                parts = ()
-            population_job = pool.submit(_population, *args, *parts, workers=target or None)
+                population_job = pool.submit(_population, *args, workers=target or None)
         else:  # in this process, when its result is asked for (after the scoring)
             population_job = pool.submit(_population, df[cols], info, footprint_src, seed)
     t_import = time.perf_counter()
