@@ -133,8 +133,9 @@ def run_tiles(
         serially with ``warm_modules``.
     side_tasks : mapping, optional
         ``name -> (func, args)``: independent work the caller needs after the tiles. On Dask it
-        is submitted after the tiles, so a worker picks it up when it runs out of tiles (the
-        time the last tiles leave a core idle); its value goes to ``TileRun.side[name]``.
+        is submitted after the tiles and runs on a worker between them (Dask starts it as soon as
+        a worker is free, typically after its first tile: the same worker time as at the end);
+        its value goes to ``TileRun.side[name]``.
         Serially, or if it fails on a worker, it is left out and the caller computes it itself.
     background_tasks : mapping, optional
         ``name -> (func, args)``: like ``side_tasks`` (submitted after them), but not waited for:
@@ -381,7 +382,7 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
         fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
                             key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
         futures[fut] = spec
-    # Queued behind the tiles (Dask runs earlier submissions first).
+    # Submitted after the tiles; Dask may still start them between tiles (see run_tiles).
     extra = {pool.submit(f, *args): name for name, (f, args) in (side_tasks or {}).items()}
     for name, (f, args) in (background_tasks or {}).items():
         background[name] = pool.submit(f, *args)

@@ -398,7 +398,7 @@ class _ScorerLoader:
     Importing the scorer's libraries and reading the model is a fixed ~2-3 s. In-process tiles
     load it first (a thread importing modules beside numpy-heavy tile code slows both:
     measured 1024^2 tile 1.5 s -> 4-8 s). When the tiles run on Dask (``defer``), the model is
-    loaded on a worker instead, as soon as that worker runs out of tiles (:func:`_warm_model`),
+    loaded on a worker instead, between its tiles (:func:`_warm_model`),
     and the merged craters are scored there (:func:`_score_table`): the main process then
     needs neither scikit-learn nor skops (loading them beside the tiles had put ~124 MB in the
     main process during the workers' memory peak, over 2 GiB at 8192^2). A user's model file
@@ -550,16 +550,16 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
 
 
 def _side_tasks(info: DemInfo) -> dict:
-    """Work independent of the tiles that a Dask worker can do once it runs out of tiles.
+    """Work independent of the tiles that a Dask worker does between them.
 
-    The valid-data footprint is a second (decimated) read of the whole DEM, ~1.4 s at 8192^2:
-    on Dask it fills the time the last tiles leave a core idle instead of following them.
+    The valid-data footprint is a second (decimated) read of the whole DEM, ~1.3 s at 8192^2:
+    on Dask it runs beside the tiles instead of after them.
     """
     return {"footprint": (valid_footprint, (info,))}
 
 
 def _background_tasks(spec: _ModelSpec | None) -> dict:
-    """Loading the scoring model and the statistics' code on workers once they run out of tiles.
+    """Loading the scoring model and the statistics' code on workers, between the tiles.
 
     Collected by :func:`_finish`, which then scores and computes the statistics on those
     workers side by side (only when the tiles ran on Dask).
