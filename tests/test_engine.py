@@ -253,17 +253,25 @@ def test_local_workers_start_with_the_retaining_malloc_settings():
 def profiling_tile(_, spec):
     """A tile that reports whether its Dask worker samples task stacks."""
     import dask
+    from dask.utils import parse_timedelta
 
+    timers = ("distributed.admin.tick.interval", "distributed.worker.memory.monitor-interval",
+              "distributed.admin.system-monitor.interval")
     return pd.DataFrame({"tile": [spec.key], "pid": [os.getpid()],
-                         "profile": [bool(dask.config.get("distributed.worker.profile.enabled"))]})
+                         "profile": [bool(dask.config.get("distributed.worker.profile.enabled"))],
+                         **{t: [parse_timedelta(dask.config.get(t))] for t in timers}})
 
 
 @pytest.mark.slow
-def test_local_workers_do_not_profile_the_tiles():
+def test_local_workers_do_not_profile_the_tiles_and_wake_less_often():
     run = run_tiles(profiling_tile, None, SPECS[:4], workers=2, progress=False)
     df = pd.concat(run.results, ignore_index=True)
     assert os.getpid() not in set(df["pid"])
     assert not df["profile"].any()
+    # Slower housekeeping timers in the workers (dask defaults: 20 ms, 100 ms, 500 ms).
+    assert (df["distributed.admin.tick.interval"] == 0.2).all()
+    assert (df["distributed.worker.memory.monitor-interval"] == 1.0).all()
+    assert (df["distributed.admin.system-monitor.interval"] == 2.0).all()
 
 
 def _footprint_like(value):
