@@ -264,11 +264,14 @@ class _SplitPopulation:
     def __init__(self, pool, args, where, target):
         self._pool, self._args, self._where, self._target = pool, args, where, target
         self._tail = pool.submit(_population_part, *args, SIMULATIONS_BESIDE_SCORING, None, workers=target)
+        self._whole = None
 
     def result(self):
-        head = self._pool.submit(_population_part, *self._args, 0, SIMULATIONS_BESIDE_SCORING,
-                                 workers=[self._where])
-        return self._pool.submit(_population, *self._args, head, self._tail, workers=self._target).result()
+        if self._whole is None:
+            head = self._pool.submit(_population_part, *self._args, 0, SIMULATIONS_BESIDE_SCORING,
+                                     workers=[self._where])
+            self._whole = self._pool.submit(_population, *self._args, head, self._tail, workers=self._target)
+        return self._whole.result()
 
 
 def _load_scorer(model):
