@@ -322,7 +322,8 @@ class TilePool:
     def submit(self, func: Callable, *args, workers: Sequence[str] | None = None):
         """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
 
-        ``workers`` (addresses) is a preference: another worker may run it if those are gone.
+        ``workers`` (addresses) is a preference: Dask may still run it on another worker when
+        those are gone or busy (it moves queued tasks to idle workers).
 
         Returns
         -------

@@ -55,7 +55,7 @@ def dbscan_clusters(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
     if n < min_samples:
         return labels
     eps = default_eps(n, area_m2) if eps_m is None else float(eps_m)
-    pairs, core, n_clusters, component = _partition(xy, eps, min_samples)
+    core, n_clusters, component, (c_end, b_end) = _partition(xy, eps, min_samples)
     if n_clusters == 0:
         return labels
     idx = np.flatnonzero(core)
@@ -67,9 +67,6 @@ def dbscan_clusters(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
     rank = np.empty(n_clusters, dtype=np.int64)
     rank[np.argsort(first)] = np.arange(n_clusters)
     labels[idx] = rank[component]
-    one = core[pairs[:, 0]] ^ core[pairs[:, 1]]
-    c_end = np.where(core[pairs[one, 0]], pairs[one, 0], pairs[one, 1])
-    b_end = np.where(core[pairs[one, 0]], pairs[one, 1], pairs[one, 0])
     best = np.full(n, np.iinfo(np.int64).max)
     np.minimum.at(best, b_end, labels[c_end])
     border = best < np.iinfo(np.int64).max
@@ -78,25 +75,29 @@ def dbscan_clusters(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
 
 
 def _partition(xy, eps, min_samples):
-    """Pairs within ``eps``, core points, and the connected components of the core points.
+    """Core points, the connected components of the core points, and the core-border links.
 
-    Returns ``(pairs, core, n_clusters, component)``; ``component`` labels the core points
-    in index order (scipy's numbering, not the clusters' order).
+    Returns ``(core, n_clusters, component, (core_end, border_end))``: ``component`` labels
+    the core points in index order (scipy's numbering, not the clusters' order); each link
+    joins a core point to a non-core point within ``eps`` of it (a border point).
     """
     n = len(xy)
     pairs = cKDTree(xy).query_pairs(eps, output_type="ndarray")
     # a point's neighbourhood includes the point itself, as in scikit-learn
     count = 1 + np.bincount(pairs.ravel(), minlength=n)
     core = count >= min_samples
+    one = pairs[core[pairs[:, 0]] ^ core[pairs[:, 1]]]
+    first_core = core[one[:, 0]]
+    links = (np.where(first_core, one[:, 0], one[:, 1]), np.where(first_core, one[:, 1], one[:, 0]))
     idx = np.flatnonzero(core)
     if idx.size == 0:
-        return pairs, core, 0, np.zeros(0, dtype=np.int64)
+        return core, 0, np.zeros(0, dtype=np.int64), links
     pos = np.full(n, -1)
     pos[idx] = np.arange(idx.size)
     cp = pairs[core[pairs[:, 0]] & core[pairs[:, 1]]]
     graph = coo_matrix((np.ones(len(cp)), (pos[cp[:, 0]], pos[cp[:, 1]])), shape=(idx.size, idx.size))
     n_clusters, component = connected_components(graph, directed=False)
-    return pairs, core, int(n_clusters), component.astype(np.int64)
+    return core, int(n_clusters), component.astype(np.int64), links
 
 
 def dbscan_counts(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
@@ -121,10 +122,9 @@ def dbscan_counts(x_m, y_m, area_m2: float, *, eps_m: float | None = None,
     if n < min_samples:
         return 0, 0.0
     eps = default_eps(n, area_m2) if eps_m is None else float(eps_m)
-    pairs, core, n_clusters, _ = _partition(xy, eps, min_samples)
+    core, n_clusters, _, (_, border_end) = _partition(xy, eps, min_samples)
     if n_clusters == 0:
         return 0, 0.0
-    one = core[pairs[:, 0]] ^ core[pairs[:, 1]]
     border = np.zeros(n, bool)
-    border[np.where(core[pairs[one, 0]], pairs[one, 1], pairs[one, 0])] = True
+    border[border_end] = True
     return n_clusters, float((core | border).sum() / n)

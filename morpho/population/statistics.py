@@ -175,8 +175,12 @@ def simulated_measures(x_m, y_m, diameter_m, valid_area, *, completeness_diamete
     if n < 5:
         return []
     radii, min_link, sims = _null_setup(valid_area, n, n_simulations, seed)
-    ds = d[keep]
-    return [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims[start:stop]]
+    return _measure_simulations(sims[start:stop], d[keep], valid_area, radii, min_link)
+
+
+def _measure_simulations(sims, d, valid_area, radii, min_link) -> list:
+    """:func:`_spatial_measures` of each simulated pattern (shape (k, n, 2)), with the observed diameters."""
+    return [_spatial_measures(s[:, 0], s[:, 1], d, valid_area, radii, min_link) for s in sims]
 
 
 def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_deg=None, ellipticity=None,
@@ -288,7 +292,7 @@ def population_statistics(x_m, y_m, diameter_m, valid_area, *, ellipse_azimuth_d
         radii, min_link, sims = _null_setup(valid_area, n, n_simulations, seed)
         obs = _spatial_measures(xs, ys, ds, valid_area, radii, min_link, labels=True)
         if simulated is None:
-            sim = [_spatial_measures(s[:, 0], s[:, 1], ds, valid_area, radii, min_link) for s in sims]
+            sim = _measure_simulations(sims, ds, valid_area, radii, min_link)
         elif len(simulated) == len(sims):
             sim = list(simulated)
         else:
