@@ -187,20 +187,44 @@ print(json.dumps({"sklearn": "sklearn" in sys.modules, "skops": "skops" in sys.m
 """
 
 
-@pytest.mark.slow
-def test_dask_survey_scores_on_a_worker_and_its_main_process_stays_light(crater_dem):
-    # Design check (DEVELOPERS.md, pipeline notes): with Dask workers the model is loaded and
-    # used on a worker, so the main process never imports scikit-learn or skops.
-    out = subprocess.run([sys.executable, "-c", _LIGHT_MAIN, str(crater_dem), str(TILE), str(MAXD)],
+def _assert_light_main(dem, tile_size):
+    """A 2-worker survey in a fresh process scores every crater without importing scikit-learn or skops."""
+    out = subprocess.run([sys.executable, "-c", _LIGHT_MAIN, str(dem), str(tile_size), str(MAXD)],
                          capture_output=True, text=True, check=True, timeout=300)
     got = json.loads(out.stdout.strip().splitlines()[-1])
     assert got["n"] > 20 and got["scored"]
     assert not got["sklearn"] and not got["skops"]
-    assert got["model_load"] > 0  # timed on the worker that loaded it
+    assert got["model_load"] > 0  # timed in the process that loaded it
 
 
 @pytest.mark.slow
-def test_untrusted_model_is_refused_on_the_workers_naming_the_users_file(tmp_path, crater_dem):
+def test_dask_survey_scores_on_a_worker_and_its_main_process_stays_light(crater_dem):
+    # Design check (DEVELOPERS.md, pipeline notes): with Dask workers the model is loaded and
+    # used on a worker, so the main process never imports scikit-learn or skops.
+    _assert_light_main(crater_dem, TILE)
+
+
+@pytest.mark.slow
+def test_single_tile_survey_on_two_cores_scores_in_a_second_process(crater_dem):
+    # Design check (DEVELOPERS.md, pipeline notes): one tile runs in this process; with a
+    # second core the model is loaded beside it in another process and the scores come from
+    # there, so this process imports neither scikit-learn nor skops ...
+    _assert_light_main(crater_dem, N)
+    # ... and the tables are those of the same single tile on one core (issue #9: same craters
+    # whatever runs them).
+    one = survey(crater_dem, tile_size=N, max_diameter_px=MAXD, seed=2, workers=1)
+    two = survey(crater_dem, tile_size=N, max_diameter_px=MAXD, seed=2, workers=2)
+    assert one.run["n_tiles"] == two.run["n_tiles"] == "1"
+    pd.testing.assert_frame_equal(pd.DataFrame(two.craters.drop(columns="geometry")),
+                                  pd.DataFrame(one.craters.drop(columns="geometry")))
+    pd.testing.assert_frame_equal(two.population, one.population)
+    pd.testing.assert_frame_equal(pd.DataFrame(two.chains.drop(columns="geometry")),
+                                  pd.DataFrame(one.chains.drop(columns="geometry")))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("tile_size", [TILE, N], ids=["dask-workers", "scoring-process"])
+def test_untrusted_model_is_refused_on_the_workers_naming_the_users_file(tmp_path, crater_dem, tile_size):
     import fractions
 
     import skops.io as sio
@@ -219,7 +243,7 @@ def test_untrusted_model_is_refused_on_the_workers_naming_the_users_file(tmp_pat
     sio.dump(payload, model)
     out = tmp_path / "out.gpkg"
     with pytest.raises(ModelFileError, match=r"evil\.skops.*untrusted types.*fractions\.Fraction"):
-        survey(crater_dem, tile_size=TILE, max_diameter_px=MAXD, seed=2, workers=2, model=model)
+        survey(crater_dem, tile_size=tile_size, max_diameter_px=MAXD, seed=2, workers=2, model=model)
     assert not out.exists()
 
 
@@ -227,9 +251,9 @@ def test_shipped_model_bytes_that_are_not_a_model_are_refused_by_the_users_name(
     # A remote scheduler's workers get the model's bytes; an error must name the file the
     # user gave, not the worker's temporary copy (issue: a clear error naming the file).
     from morpho.errors import ModelFileError
+    from morpho.scoring import _table
 
-    survey_module = sys.modules["morpho.pipeline.survey"]
-    spec = survey_module._ModelSpec(path="/data/models/mine.skops", sha256="0" * 64, data=b"not a zip file")
+    spec = _table.ModelSpec(path="/data/models/mine.skops", sha256="0" * 64, data=b"not a zip file")
     with pytest.raises(ModelFileError, match=r"^/data/models/mine\.skops: "):
-        survey_module._cached_model(spec)
-    assert spec.sha256 not in survey_module._MODELS
+        _table.cached_model(spec)
+    assert spec.sha256 not in _table.MODELS

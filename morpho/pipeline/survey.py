@@ -9,11 +9,11 @@ statistics on the merged table, and return a :class:`SurveyResult` that
 
 from __future__ import annotations
 
-import hashlib
 import importlib
 import json
 import logging
 import math
+import os
 import time
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -28,6 +28,7 @@ import shapely
 from ..dictionary import CRATER_COLUMNS
 from ..errors import InputError
 from ..ingest import DemInfo, open_dem, plan_tiles, valid_footprint
+from ..scoring._table import ModelSpec, apply_scores, model_spec, score_table, warm_model
 from .engine import TilePool, run_tiles, uses_dask
 from .tile_job import TileParams, measure_tile, survey_tile
 
@@ -310,57 +311,11 @@ def _precheck_model(model) -> None:
                              fix="rebuild it with `morpho train` or reinstall morpho.")
 
 
-@dataclass(frozen=True)
-class _ModelSpec:
-    """Where a Dask worker finds the scoring model: the file (local cluster) or its bytes (remote)."""
-
-    path: str
-    sha256: str
-    data: bytes | None = None
-
-
-def _model_spec(model, *, ship: bool) -> _ModelSpec:
-    """The model file's path and hash, with its bytes when the workers may not see this disk."""
-    from ..scoring import default_model_path  # light: no scikit-learn or skops
-
-    path = default_model_path() if model is None or model == "default" else Path(model)
-    data = path.read_bytes()
-    return _ModelSpec(str(path), hashlib.sha256(data).hexdigest(), data if ship else None)
-
-
-#: Models loaded in this process, by file hash (a Dask worker keeps the one it loaded for scoring).
-_MODELS: dict[str, object] = {}
-
-
-def _cached_model(spec: _ModelSpec):
-    """``(model, seconds spent loading it now)``: the model of ``spec``, loaded once per process."""
-    if spec.sha256 in _MODELS:
-        return _MODELS[spec.sha256], 0.0
-    from ..errors import ModelFileError
-    from ..scoring import load_model
-
-    t0 = time.perf_counter()
-    if spec.data is None:
-        model = load_model(spec.path)
-    else:
-        import tempfile
-
-        with tempfile.TemporaryDirectory(prefix="morpho-model-") as tmp:
-            local = Path(tmp) / Path(spec.path).name
-            local.write_bytes(spec.data)
-            try:
-                model = load_model(local)
-            except ModelFileError as err:  # name the user's file, not the worker's copy
-                raise ModelFileError(err.bare_message, path=spec.path, fix=err.fix) from None
-    _MODELS[spec.sha256] = model
-    return model, time.perf_counter() - t0
-
-
-def _warm_model(spec: _ModelSpec):
+def _warm_model(spec: ModelSpec):
     """Load the model on a Dask worker ahead of scoring: ``(worker address, seconds)``."""
     from dask.distributed import get_worker
 
-    _, seconds = _cached_model(spec)
+    seconds = warm_model(spec)
     return get_worker().address, seconds
 
 
@@ -372,51 +327,82 @@ def _warm_population():
     return get_worker().address
 
 
-def _apply_scores(df: pd.DataFrame, body, fitted) -> pd.DataFrame:
-    """Scaling residuals, score columns and the training-domain guard of merged craters."""
-    from ..scaling import add_scaling_columns
-    from ..scoring import score_craters, training_domain_notes
+class _ScoringProcess:
+    """A second process that loads the scoring model while this one runs the tiles, then scores.
 
-    df = add_scaling_columns(df, body)
-    scores = score_craters(df, fitted)
-    for col in scores.columns:
-        df[col] = scores[col].to_numpy()
-    # Outside the training domain the classifier extrapolates: flag it, claim neither.
-    notes = training_domain_notes(df, body)
-    df["scoring_domain"] = notes
-    outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
-    df.loc[outside, "verdict"] = "neither"
-    return df
+    For tiles run in this process (a single tile) when more than one core was given: importing
+    scikit-learn and skops and reading the model (~2-3 s) then overlaps the tile instead of
+    preceding it, and the scoring overlaps the population statistics. A thread would not do
+    (see :class:`_ScorerLoader`). Spawned, not forked (this process may already run threads);
+    what it runs lives in :mod:`morpho.scoring._table`, which imports neither geopandas nor
+    the pipeline.
+    """
 
+    def __init__(self, spec: ModelSpec):
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
 
-def _score_table(df: pd.DataFrame, body, spec: _ModelSpec):
-    """:func:`_apply_scores` with the model of ``spec`` (on a worker): ``(table, seconds loading)``."""
-    fitted, seconds = _cached_model(spec)
-    return _apply_scores(df, body, fitted), seconds
+        self.spec = spec
+        self._pool = ProcessPoolExecutor(max_workers=1, mp_context=multiprocessing.get_context("spawn"))
+        try:
+            self._warm = self._pool.submit(warm_model, spec)
+        except BaseException:
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            raise
+
+    def wait_model(self) -> float | None:
+        """Seconds the other process took to load the model, once it has; None if that process
+        broke (the caller then loads the model itself). A model file that cannot be loaded
+        raises its :class:`~morpho.errors.ModelFileError` here."""
+        from concurrent.futures.process import BrokenProcessPool
+
+        try:
+            return self._warm.result()
+        except BrokenProcessPool as err:
+            log.warning("the scoring process stopped (%s); loading the model in this process", err)
+            return None
+
+    def score(self, df: pd.DataFrame, body):
+        """Future of :func:`~morpho.scoring._table.score_table` in the other process."""
+        return self._pool.submit(score_table, df, body, self.spec)
+
+    def close(self, *, wait: bool = True) -> None:
+        self._pool.shutdown(wait=wait, cancel_futures=True)
 
 
 class _ScorerLoader:
-    """Loads the scoring model in this process, before in-process tiles; checks it for Dask runs.
+    """Loads the scoring model for a survey: here before in-process tiles, beside them in a
+    second process, or on a Dask worker.
 
     Importing the scorer's libraries and reading the model is a fixed ~2-3 s. In-process tiles
-    load it first (a thread importing modules beside numpy-heavy tile code slows both:
-    measured 1024^2 tile 1.5 s -> 4-8 s). When the tiles run on Dask (``defer``), the model is
-    loaded on a worker instead, between its tiles (:func:`_warm_model`),
-    and the merged craters are scored there (:func:`_score_table`): the main process then
-    needs neither scikit-learn nor skops (loading them beside the tiles had put ~124 MB in the
-    main process during the workers' memory peak, over 2 GiB at 8192^2). A user's model file
+    on one core load it first (a thread importing modules beside numpy-heavy tile code slows both:
+    measured 1024^2 tile 1.5 s -> 4-8 s). With more cores (``beside``), a second process loads it
+    while the tile runs here and scores there (:class:`_ScoringProcess`). When the tiles run on
+    Dask (``defer``), the model is loaded on a worker instead, between its tiles (:func:`_warm_model`),
+    and the merged craters are scored there (:func:`~morpho.scoring._table.score_table`): the main
+    process then needs neither scikit-learn nor skops (loading them beside the tiles had put ~124 MB
+    in the main process during the workers' memory peak, over 2 GiB at 8192^2). A user's model file
     gets cheap checks up front (:func:`_precheck_model`), so a missing or broken file still
     stops the survey before any tile runs. ``seconds`` is the time spent loading here.
+    Use it as a context manager: leaving closes the scoring process.
     """
 
-    def __init__(self, model, *, defer: bool):
+    def __init__(self, model, *, defer: bool, beside: bool = False):
         self._model = model
         self._value = None
         self._error: BaseException | None = None
         self.seconds = 0.0
         self.deferred = defer
+        self.process: _ScoringProcess | None = None
         if defer:
             _precheck_model(model)
+        elif beside:
+            _precheck_model(model)
+            try:
+                self.process = _ScoringProcess(model_spec(model, ship=False))
+            except OSError as err:  # no second process here: load the model now, as on one core
+                log.warning("could not start a scoring process (%s); loading the model first", err)
+                self.result()
         else:
             self.result()  # a bad model file fails here, before any tile runs
 
@@ -436,10 +422,29 @@ class _ScorerLoader:
             raise self._error
         return self._value
 
+    def close(self, *, wait: bool = True) -> None:
+        """Stop the scoring process, if any (``wait``: let it finish its task first)."""
+        if self.process is not None:
+            self.process.close(wait=wait)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        self.close(wait=exc_type is None)
+        return False
+
+
+def _scores_beside(n_tiles: int, workers: int | None, scheduler: str | None) -> bool:
+    """Whether in-process tiles get a scoring process (:class:`_ScoringProcess`): more than one
+    core given but the tiles run here (a single tile)."""
+    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    return n_workers > 1 and not uses_dask(n_tiles, workers, scheduler)
+
 
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,
             started: str, failed: dict, command: str, timing: dict, unmeasured=None,
-            footprint=None, pool: TilePool, spec: _ModelSpec | None = None,
+            footprint=None, pool: TilePool, spec: ModelSpec | None = None,
             background: dict | None = None) -> SurveyResult:
     """Scaling, scoring, population statistics and provenance of the merged craters.
 
@@ -468,7 +473,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
                 log.debug("loading the model on a worker failed: %s", err)
                 where = None
             waited += time.perf_counter() - t_wait
-            score_job = pool.submit(_score_table, df, info.body, spec, workers=[where] if where else None)
+            score_job = pool.submit(score_table, df, info.body, spec, workers=[where] if where else None)
             try:
                 ready = warm_population.result() if warm_population is not None else None
             except Exception:  # noqa: BLE001 - only a head start; the statistics import it anyway
@@ -489,19 +494,30 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     from ..outputs import run_provenance
 
     if not on_workers:
-        from ..scaling import add_scaling_columns  # noqa: F401 - the finish stage's one-off imports
-        from ..scoring import score_craters  # noqa: F401
+        # The finish stage's one-off imports (scipy.stats among them: ~0.5 s when scikit-learn,
+        # which imports it too, is in another process).
+        importlib.import_module("morpho.population.statistics")
+        if loader.process is None:
+            from ..scaling import add_scaling_columns  # noqa: F401
+            from ..scoring import score_craters  # noqa: F401
 
     # One-off imports of the finish stage's code are a fixed cost, like the tile code's.
     imported = time.perf_counter() - t_import
     timing["warmup"] = timing.get("warmup", 0.0) + imported
+    helper = loader.process  # a second process holding the model (in-process tiles, > 1 core)
     if on_workers:
         model_path = Path(spec.path)
     else:
         t_model = time.perf_counter()
-        fitted, model_path = loader.result()
+        loaded = helper.wait_model() if helper is not None else None
+        if loaded is None:
+            helper = None
+            fitted, model_path = loader.result()
+            timing["model_load"] = loader.seconds
+        else:
+            model_path = Path(helper.spec.path)
+            timing["model_load"] = loaded
         waited += time.perf_counter() - t_model  # 0 when it was loaded before in-process tiles
-        timing["model_load"] = loader.seconds
     envelope = None
     if len(df):
         t0 = time.perf_counter()
@@ -510,10 +526,15 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
             # Loaded by the scoring task itself when the warm-up did not reach that worker.
             timing["model_load"] += loading
             waited += loading
+        elif helper is not None:
+            score_job = helper.score(df, info.body)
+            pop, chains = population_job.result()  # here, while the other process scores
+            df, _ = score_job.result()
         else:
-            df = _apply_scores(df, info.body, fitted)
+            df = apply_scores(df, info.body, fitted)
         t1 = time.perf_counter()
-        pop, chains = population_job.result()
+        if helper is None:
+            pop, chains = population_job.result()
         log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
                  t1 - t0, time.perf_counter() - t1, len(df))
         df["cluster_id"] = pop["cluster_id"]
@@ -541,7 +562,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     pool.close()
     timing["cluster"] = timing.get("cluster", 0.0) + pool.seconds - before_close
     now = time.perf_counter()
-    timing["model_wait"] = waited if on_workers else loader.seconds
+    timing["model_wait"] = waited if on_workers or loader.process is not None else loader.seconds
     timing["finish"] = now - t_finish - imported - waited - (pool.seconds - before_close)
     # Wall time of the stages (seconds; differs run to run, unlike every other value).
     caveats = run.pop("caveats")  # stays the last key
@@ -561,7 +582,7 @@ def _side_tasks(info: DemInfo) -> dict:
     return {"footprint": (valid_footprint, (info,))}
 
 
-def _background_tasks(spec: _ModelSpec | None) -> dict:
+def _background_tasks(spec: ModelSpec | None) -> dict:
     """Loading the scoring model and the statistics' code on workers, between the tiles.
 
     Collected by :func:`_finish`, which then scores and computes the statistics on those
@@ -645,7 +666,11 @@ def survey(
     model : str or Path, optional
         Scoring model file (skops); the shipped default when omitted.
     workers : int, optional
-        Local worker processes (``None`` = all cores).
+        Local worker processes (``None`` = all cores). Several tiles go to a local Dask
+        cluster; a single tile runs in this process, and with more than one worker a second
+        process loads the scoring model beside it and scores. Both start processes by
+        ``spawn``, so a script that calls this with more than one worker needs the usual
+        ``if __name__ == "__main__":`` guard (see :mod:`multiprocessing`).
     scheduler : str, optional
         Address of an existing dask.distributed scheduler.
     run_dir : Path, optional
@@ -670,12 +695,13 @@ def survey(
                     z_offset=z_offset, min_diameter_px=min_diameter_px)
     specs, max_d = _tiling(info, tile_size, max_diameter_px)
     timing = {"open": time.perf_counter() - t_start}  # opening the DEM and planning its tiles
-    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler))
+    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler),
+                           beside=_scores_beside(len(specs), workers, scheduler))
     params = TileParams(min_diameter_px=float(min_diameter_px), max_diameter_px=max_d,
                         n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed),
                         fail_tiles=tuple(_fail_tiles))
-    spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
-    with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
+    spec = model_spec(model, ship=scheduler is not None) if loader.deferred else None
+    with loader, TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(survey_tile, info, specs, (params,), run_dir=None if run_dir is None else Path(run_dir),
                         resume=resume, progress=progress, local_modules=MERGE_MODULES,
                         side_tasks=_side_tasks(info), background_tasks=_background_tasks(spec), pool=pool)
@@ -754,7 +780,8 @@ def measure(
     overlap = 0 if single else int(math.ceil(1.25 * max_d_px))
     specs = plan_tiles(info, max(info.height, info.width) if single else tile_size, overlap)
     timing = {"open": time.perf_counter() - t_start}  # opening the DEM and planning its tiles
-    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler))
+    loader = _ScorerLoader(model, defer=uses_dask(len(specs), workers, scheduler),
+                           beside=_scores_beside(len(specs), workers, scheduler))
     # Craters whose centre is outside the raster are reported, not silently dropped.
     inv = ~info.transform
     col = inv.c + inv.a * craters["x"].to_numpy(float) + inv.b * craters["y"].to_numpy(float)
@@ -763,8 +790,8 @@ def measure(
     unmeasured = [{"crater_id": str(c), "reason": "centre outside the DEM"}
                   for c in craters.loc[~inside, "crater_id"]]
     params = TileParams(n_azimuths=int(n_azimuths), n_boot=int(n_boot), seed=int(seed))
-    spec = _model_spec(model, ship=scheduler is not None) if loader.deferred else None
-    with TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
+    spec = model_spec(model, ship=scheduler is not None) if loader.deferred else None
+    with loader, TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
                         progress=progress, local_modules=MERGE_MODULES, side_tasks=_side_tasks(info),
                         background_tasks=_background_tasks(spec), pool=pool)
