@@ -12,7 +12,7 @@ from skimage.measure import profile_line
 
 from morpho.morphometry import sample_radial_profiles
 from morpho.morphometry._detrend import detrend_profiles, fit_annulus_plane
-from morpho.morphometry.profiles import sample_polar
+from morpho.morphometry.profiles import PolarSampler, sample_polar
 
 
 def _surface(shape=(80, 90), seed=1):
@@ -56,6 +56,45 @@ def test_nodata_and_off_grid_samples_are_nan_never_filled():
     assert np.isfinite(east[np.abs(cols - 50) >= 1]).all()
     assert np.isnan(p.z[1, 2, -1]) and np.isfinite(p.z[1, 2, 0])  # west of (5, 5) leaves the grid
     assert p.radii_px().shape == (2, 11)
+
+
+def test_prepared_sampler_gives_the_same_samples_with_nodata():
+    # A PolarSampler finds the no-data once; what it samples must be exactly what the array
+    # gives (profile_line is checked against the array above), NaN holes included.
+    z = _surface()
+    z[38:43, 48:52] = np.nan
+    rows, cols, rad = np.array([40.0, 20.0, 70.0]), np.array([44.0, 20.0, 80.0]), np.array([10.0, 6.0, 12.0])
+    az = np.linspace(0.0, 2.0 * np.pi, 24, endpoint=False)
+    radii = np.linspace(0.0, 2.5, 40)
+    ref = sample_polar(z, rows, cols, rad, az, radii)
+    sampler = PolarSampler(z)
+    assert sampler.has_nan
+    got = sample_polar(sampler, rows, cols, rad, az, radii)
+    np.testing.assert_array_equal(got, ref)
+    assert np.isnan(ref).any() and np.isfinite(ref).any()
+    p = sample_radial_profiles(sampler, rows, cols, rad, n_azimuths=24, n_radii=40)
+    np.testing.assert_array_equal(p.z, sample_radial_profiles(z, rows, cols, rad, n_azimuths=24, n_radii=40).z)
+
+
+def test_measurement_finds_the_nodata_once_per_call_not_per_batch(monkeypatch):
+    # Design check (DEVELOPERS.md): refine_craters and measure_craters each prepare one sampler
+    # for all their batches (craters of 2, 5 and 12 px radius: three radius classes).
+    from morpho.morphometry import _measure, _refine, measure_craters, profiles
+
+    made = []
+
+    class Counting(PolarSampler):
+        def __init__(self, z):
+            made.append(1)
+            super().__init__(z)
+
+    monkeypatch.setattr(_measure, "PolarSampler", Counting)
+    monkeypatch.setattr(_refine, "PolarSampler", Counting)
+    monkeypatch.setattr(profiles, "PolarSampler", Counting)  # a sampler made per batch would count too
+    z = _surface()
+    z[0:3, :] = np.nan
+    measure_craters(z, 10.0, [40.0, 20.0, 60.0], [44.0, 20.0, 50.0], [12.0, 5.0, 2.0], n_boot=0)
+    assert len(made) == 2
 
 
 def test_sample_polar_equals_uniform_sampler_on_any_radii():

@@ -31,7 +31,7 @@ import numpy as np
 
 from morpho.morphometry._geometry import fit_circle
 from morpho.morphometry._refine import inner_summit_index
-from morpho.morphometry.profiles import sample_radial_profiles
+from morpho.morphometry.profiles import PolarSampler, sample_radial_profiles
 
 from ._merge import suppress_duplicates
 
@@ -270,6 +270,7 @@ def verify_candidates(
     rows = np.asarray(rows, dtype=np.float64)
     cols = np.asarray(cols, dtype=np.float64)
     rad = np.asarray(radius_px, dtype=np.float64)
+    z = PolarSampler(z)  # no data found once for every chunk and pass
     # Chunks bound the memory of the (n, azimuths, radii) profile stacks.
     chunks = range(0, max(rows.size, 1), _CHUNK)
     parts = [_screen(z, rows[i:i + _CHUNK], cols[i:i + _CHUNK], rad[i:i + _CHUNK], spacing_m,

@@ -21,6 +21,7 @@ from ._refine import (
     sharpen_crest,
 )
 from ._validate import as_centres, as_dem, as_spacing
+from .profiles import PolarSampler
 
 __all__ = ["measure_craters", "measure_crater", "FEATURES_WITH_ERROR"]
 
@@ -237,9 +238,10 @@ def measure_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_boo
         context = neighbour_context(np.zeros(0), NeighbourPairs.none(), 0)
         return probe.iloc[:0].assign(**context, measure_status=pd.Series(dtype=object))
     near = _Neighbours(r0, c0, rad0, neighbours)
+    sampler = PolarSampler(z)  # no data found once for every batch
     parts = []
     for idx in radius_batches(rad0, chunk):
-        part = _measure_chunk(z, r0[idx], c0[idx], rad0[idx], spacing[idx], n_azimuths,
+        part = _measure_chunk(sampler, r0[idx], c0[idx], rad0[idx], spacing[idx], n_azimuths,
                               boot_idx, body, *near.mask(idx, n_azimuths))
         part.index = idx
         parts.append(part)

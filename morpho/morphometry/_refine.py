@@ -11,7 +11,7 @@ import pandas as pd
 from ._detrend import detrend_profiles
 from ._geometry import fit_circle, interp_last
 from ._validate import as_centres, as_dem, as_spacing
-from .profiles import sample_polar, sample_radial_profiles
+from .profiles import PolarSampler, sample_polar, sample_radial_profiles
 
 __all__ = ["Crest", "find_crest", "find_inner_crest", "inner_summit_index",
            "sharpen_crest", "refine_craters", "detrended_profiles", "profile_grid",
@@ -351,6 +351,7 @@ def refine_craters(z, spacing_m, rows, cols, radius_px, *, n_azimuths=64, n_iter
     # Batches of one radius class share a radial grid set by the class (see radius_batches).
     batches = radius_batches(rad0, chunk)
     order = np.concatenate(batches)
+    z = PolarSampler(z)  # no data found once for every batch and pass
     parts = [_refine_chunk(z, r0[idx], c0[idx], rad0[idx], n_azimuths, n_iter, window) for idx in batches]
     out = pd.concat(parts, ignore_index=True)
     result = out.copy()
