@@ -222,6 +222,26 @@ def test_single_tile_survey_on_two_cores_scores_in_a_second_process(crater_dem):
                                   pd.DataFrame(one.chains.drop(columns="geometry")))
 
 
+def _die(*_args):
+    """Stands in for the scoring process's work and ends that process abruptly."""
+    os._exit(3)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("step", ["warm_model", "score_table"])
+def test_single_tile_survey_survives_its_scoring_process_dying(crater_dem, monkeypatch, caplog, step):
+    # Reliability (issue #9: the rest completes): if the second process dies while loading the
+    # model or while scoring, this process does that work itself and the tables do not change.
+    survey_module = sys.modules["morpho.pipeline.survey"]
+    one = survey(crater_dem, tile_size=N, max_diameter_px=MAXD, seed=2, workers=1)
+    monkeypatch.setattr(survey_module, step, _die)
+    with caplog.at_level("WARNING", logger="morpho.pipeline.survey"):
+        two = survey(crater_dem, tile_size=N, max_diameter_px=MAXD, seed=2, workers=2)
+    assert any("scoring process stopped" in r.getMessage() for r in caplog.records)
+    pd.testing.assert_frame_equal(pd.DataFrame(two.craters.drop(columns="geometry")),
+                                  pd.DataFrame(one.craters.drop(columns="geometry")))
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("tile_size", [TILE, N], ids=["dask-workers", "scoring-process"])
 def test_untrusted_model_is_refused_on_the_workers_naming_the_users_file(tmp_path, crater_dem, tile_size):

@@ -364,7 +364,25 @@ class _ScoringProcess:
 
     def score(self, df: pd.DataFrame, body):
         """Future of :func:`~morpho.scoring._table.score_table` in the other process."""
-        return self._pool.submit(score_table, df, body, self.spec)
+        from concurrent.futures import Future
+        from concurrent.futures.process import BrokenProcessPool
+
+        try:
+            return self._pool.submit(score_table, df, body, self.spec)
+        except BrokenProcessPool as err:  # it stopped after loading the model: see scores()
+            failed = Future()
+            failed.set_exception(err)
+            return failed
+
+    def scores(self, job) -> pd.DataFrame | None:
+        """The scored table of a :meth:`score` job; None if the other process broke."""
+        from concurrent.futures.process import BrokenProcessPool
+
+        try:
+            return job.result()[0]
+        except BrokenProcessPool as err:
+            log.warning("the scoring process stopped (%s); scoring in this process", err)
+            return None
 
     def close(self, *, wait: bool = True) -> None:
         self._pool.shutdown(wait=wait, cancel_futures=True)
@@ -529,7 +547,10 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
         elif helper is not None:
             score_job = helper.score(df, info.body)
             pop, chains = population_job.result()  # here, while the other process scores
-            df, _ = score_job.result()
+            scored = helper.scores(score_job)
+            if scored is None:  # that process broke: score here
+                scored = apply_scores(df, info.body, loader.result()[0])
+            df = scored
         else:
             df = apply_scores(df, info.body, fitted)
         t1 = time.perf_counter()
