@@ -314,3 +314,21 @@ def test_ring_response_matches_scipy_signal_fftconvolve():
             d_m = 2.0 * r * 10.0
             ref = np.nan_to_num((rim - inner) / (d_m * depth_ratio_floor(d_m, 0.05)), nan=0.0, posinf=0.0, neginf=0.0)
         np.testing.assert_allclose(out[j], ref, rtol=1e-9, atol=1e-9)
+
+
+@settings(max_examples=200, deadline=None)
+@given(shape=st.tuples(st.integers(1, 4), st.integers(1, 9), st.integers(1, 9)), seed=st.integers(0, 2**32 - 1),
+       threshold=st.sampled_from([0.0, 0.3, 0.5]))
+def test_scale_space_maxima_equal_a_3d_maximum_filter(shape, seed, threshold):
+    # Independent reference: scipy.ndimage.maximum_filter over 3 x 3 x 3 (scale, row, col) with
+    # "nearest" edges (Lindeberg 1998 scale-space maxima). Values on a coarse grid make ties
+    # and plateaus common; edges and single-scale stacks are included.
+    from scipy import ndimage
+
+    from morpho.detection._candidates import _scale_space_maxima
+
+    resp = (np.random.default_rng(seed).integers(0, 4, size=shape) / 3).astype(np.float32)
+    ref = np.nonzero((resp >= ndimage.maximum_filter(resp, size=3, mode="nearest")) & (resp > threshold))
+    got = _scale_space_maxima(resp, threshold)
+    for a, b in zip(got, ref, strict=True):
+        np.testing.assert_array_equal(a, b)

@@ -214,33 +214,38 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
     return out, sm
 
 
+#: The 26 neighbours of a scale-space sample (d_scale, d_row, d_col), those in its own scale first:
+#: most candidates fail there, so the later comparisons see few.
+_NEIGHBOURS = ((0, 0, 1), (0, 0, -1), (0, 1, 0), (0, -1, 0), (0, 1, 1), (0, 1, -1), (0, -1, 1), (0, -1, -1),
+               *((d, r, c) for d in (-1, 1) for r in (0, -1, 1) for c in (0, -1, 1)))
+
+
 def _scale_space_maxima(resp: np.ndarray, threshold: float):
-    """Indices (scale, row, col) of 3 x 3 x 3 local maxima above ``threshold``.
+    """Indices (scale, row, col) of 3 x 3 x 3 local maxima above ``threshold``, in C order.
 
-    A 2-D maximum filter per scale, then a comparison with the filtered neighbours in scale:
-    the same set as a 3-D maximum filter, with one separable pass fewer.
+    The set ``resp >= maximum_filter(resp, size=3, mode="nearest")`` and ``resp > threshold``,
+    found without a filter pass: only the samples above ``threshold`` (~1.5 % of a benchmark
+    tile's) are compared with their 26 neighbours (clipped at the edges, as "nearest" does),
+    and each comparison drops those that fail (0.63 -> 0.12 s on a 5 x 2688 x 2688 response).
+    ``resp`` is finite (see :func:`_level_response`).
     """
-    last = len(resp) - 1
-    flat = {}
-
-    def flat_at(k):
-        if k not in flat:
-            flat[k] = ndimage.maximum_filter(resp[k], size=3, mode="nearest")
-        return flat[k]
-
-    found = []
-    # Layer by layer, keeping only the three filtered layers in use: peak memory stays a few
-    # layers, not 2 x resp.
-    for j, layer in enumerate(resp):
-        flat.pop(j - 2, None)
-        is_max = (layer >= flat_at(j)) & (layer >= flat_at(min(j + 1, last))) & (layer >= flat_at(max(j - 1, 0)))
-        is_max &= layer > threshold
-        rr, cc = np.nonzero(is_max)
-        found.append((np.full(rr.size, j, dtype=np.intp), rr, cc))
-    if not found:
-        empty = np.zeros(0, dtype=np.intp)
-        return empty, empty, empty
-    return tuple(np.concatenate([f[k] for f in found]) for k in range(3))
+    n, h, w = resp.shape
+    flat = resp.reshape(-1)
+    cand = np.flatnonzero(resp > threshold)
+    jj, rem = np.divmod(cand, h * w)
+    rr, cc = np.divmod(rem, w)
+    val = flat[cand]
+    idx = np.arange(cand.size)
+    for dj, dr, dc in _NEIGHBOURS:
+        j, r, c = jj[idx], rr[idx], cc[idx]
+        if dj:
+            j = np.clip(j + dj, 0, n - 1)
+        if dr:
+            r = np.clip(r + dr, 0, h - 1)
+        if dc:
+            c = np.clip(c + dc, 0, w - 1)
+        idx = idx[val[idx] >= flat[(j * h + r) * w + c]]
+    return jj[idx], rr[idx], cc[idx]
 
 
 def _ring_response(sm, valid, radii, d_scale_m, min_depth_ratio):
