@@ -469,9 +469,10 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     When the tiles ran on Dask, the scoring (with the model of ``spec``, loaded on a worker
     while the last tiles ran: ``background`` from :func:`_background_tasks`) and the population
     statistics (positions and sizes only) go to two workers, and this process imports neither
-    scikit-learn nor skops;
-    serially both run here, with the model the ``loader`` read before the tiles. ``pool`` is
-    closed here, so its teardown counts as ``cluster``.
+    scikit-learn nor skops. With in-process tiles the statistics run here, and the scoring
+    runs in the ``loader``'s scoring process when it has one (one tile, several cores; this
+    process then imports neither either), else here with the model it read before the tiles.
+    ``pool`` is closed here, so its teardown counts as ``cluster``.
     """
     t_finish = time.perf_counter()
     # Computed by a Dask worker beside the last tiles when there was one (see _side_tasks).
