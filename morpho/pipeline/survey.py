@@ -557,8 +557,10 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
         t1 = time.perf_counter()
         if helper is None:
             pop, chains = population_job.result()
-        log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
-                 t1 - t0, time.perf_counter() - t1, len(df))
+            log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
+                     t1 - t0, time.perf_counter() - t1, len(df))
+        else:
+            log.info("population statistics here and scoring beside them %.1f s (%d craters)", t1 - t0, len(df))
         df["cluster_id"] = pop["cluster_id"]
         df["chain_id"] = pop["chain_id"]
         population = pop["stats"]
