@@ -278,12 +278,23 @@ def wquantile(values, q, w=None):
     -------
     ndarray, shape (n,) or (n, b)
     """
-    order, srt, ok = _sort_valid(values)
     if w is None:
+        _, srt, ok = _sort_valid(values)
         return _pick_quantile(srt, ok.astype(float), q)
-    cum, total = _sorted_cumweights(order, ok, np.asarray(w))
-    out = np.take_along_axis(srt, _first_reaching(cum, q * total - 1e-9), -1)
-    return np.where(total > 0, out, np.nan)
+    return _weighted_pick(values, np.asarray(w), q)[0]
+
+
+def _weighted_pick(values, w, q):
+    """Weighted ``q``-quantiles of every replicate, and what they were found from.
+
+    Returns ``(quantile (n, b), sorted values, finite mask, running sums, totals, sorted
+    position of each quantile)``; see :func:`_sorted_cumweights` and :func:`_first_reaching`.
+    """
+    order, srt, ok = _sort_valid(values)
+    cum, total = _sorted_cumweights(order, ok, w)
+    pos = _first_reaching(cum, q * total - 1e-9)
+    out = np.where(total > 0, np.take_along_axis(srt, pos, -1), np.nan)
+    return out, srt, ok, cum, total, pos
 
 
 def _pick_quantile(srt, ws, q):
@@ -398,10 +409,7 @@ def wmad_relative(values, w=None):
         mad = wquantile(np.abs(values - med[:, None]), 0.5)
     else:
         w = np.asarray(w)
-        order, srt, ok = _sort_valid(values)
-        cum, total = _sorted_cumweights(order, ok, w)
-        pos = _first_reaching(cum, 0.5 * total - 1e-9)
-        med = np.where(total > 0, np.take_along_axis(srt, pos, -1), np.nan)
+        med, srt, ok, cum, total, pos = _weighted_pick(values, w, 0.5)
         mad = None
         if srt.dtype == np.float64 and cum.dtype.kind == "i":  # counts (exact sums)
             mad = _mad_from_sorted(srt, ok, cum, pos, total)

@@ -209,10 +209,14 @@ def run_tiles(
     return run
 
 
+def local_workers(workers: int | None) -> int:
+    """Local worker processes meant by ``workers`` (``None`` = all cores)."""
+    return (os.cpu_count() or 1) if workers is None else int(workers)
+
+
 def uses_dask(n_tiles: int, workers: int | None, scheduler: str | None) -> bool:
     """Whether :func:`run_tiles` sends ``n_tiles`` tiles to Dask (else it runs them in this process)."""
-    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
-    return scheduler is not None or (n_workers > 1 and n_tiles > 1)
+    return scheduler is not None or (local_workers(workers) > 1 and n_tiles > 1)
 
 
 #: Timer intervals for local clusters (see TilePool.start).
@@ -261,7 +265,7 @@ class TilePool:
     """
 
     def __init__(self, *, workers: int | None = 1, scheduler: str | None = None, warm_modules: Sequence[str] = ()):
-        self.n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+        self.n_workers = local_workers(workers)
         self.workers = workers
         self.scheduler = scheduler
         self.warm_modules = tuple(warm_modules)

@@ -13,7 +13,6 @@ import importlib
 import json
 import logging
 import math
-import os
 import time
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -28,8 +27,15 @@ import shapely
 from ..dictionary import CRATER_COLUMNS
 from ..errors import InputError
 from ..ingest import DemInfo, open_dem, plan_tiles, valid_footprint
-from ..scoring._table import ModelSpec, apply_scores, model_spec, score_table, warm_model
-from .engine import TilePool, run_tiles, uses_dask
+from ..scoring._table import (
+    ModelSpec,
+    apply_scores,
+    model_file,
+    model_spec,
+    score_table,
+    warm_model,
+)
+from .engine import TilePool, local_workers, run_tiles, uses_dask
 from .tile_job import TileParams, measure_tile, survey_tile
 
 __all__ = ["SurveyResult", "survey", "measure"]
@@ -277,10 +283,10 @@ class _SplitPopulation:
 
 def _load_scorer(model):
     """The scoring model and its path (the shipped default when ``model`` is None or "default")."""
-    from ..scoring import default_model_path, load_model
+    from ..scoring import load_model
 
-    model_path = default_model_path() if model is None or model == "default" else Path(model)
-    return load_model(model_path), model_path
+    path = model_file(model)
+    return load_model(path), path
 
 
 def _precheck_model(model) -> None:
@@ -456,8 +462,7 @@ class _ScorerLoader:
 def _scores_beside(n_tiles: int, workers: int | None, scheduler: str | None) -> bool:
     """Whether in-process tiles get a scoring process (:class:`_ScoringProcess`): more than one
     core given but the tiles run here (a single tile)."""
-    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
-    return n_workers > 1 and not uses_dask(n_tiles, workers, scheduler)
+    return local_workers(workers) > 1 and not uses_dask(n_tiles, workers, scheduler)
 
 
 def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader, params: dict, t_start: float,

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["ModelSpec", "model_spec", "cached_model", "warm_model", "apply_scores", "score_table"]
+__all__ = ["ModelSpec", "model_file", "model_spec", "cached_model", "warm_model", "apply_scores", "score_table"]
 
 
 @dataclass(frozen=True)
@@ -26,11 +26,16 @@ class ModelSpec:
     data: bytes | None = None
 
 
-def model_spec(model, *, ship: bool) -> ModelSpec:
-    """The model file's path and hash, with its bytes when the other process may not see this disk."""
+def model_file(model) -> Path:
+    """The model file meant by ``model``: the shipped default when None or "default"."""
     from ._persistence import default_model_path  # light: no scikit-learn or skops
 
-    path = default_model_path() if model is None or model == "default" else Path(model)
+    return default_model_path() if model is None or model == "default" else Path(model)
+
+
+def model_spec(model, *, ship: bool) -> ModelSpec:
+    """The model file's path and hash, with its bytes when the other process may not see this disk."""
+    path = model_file(model)
     data = path.read_bytes()
     return ModelSpec(str(path), hashlib.sha256(data).hexdigest(), data if ship else None)
 
