@@ -15,6 +15,14 @@ _PIKE = "Pike 1977, Impact and Explosion Cratering (Pergamon) 489-509"
 _BRETON = "Breton et al. 2019, MethodsX 6:2293-2304"
 _MEAN = "on the mean profile; "
 _COMMON = "common practice"
+#: Rings (crater radii) and azimuthal orders of the ``ring_h{k}_r{100 r/R}`` columns
+#: (:func:`morpho.morphometry._features.ring_harmonics`): the cavity (0.2-0.8 R), the rim
+#: (1.0, 1.2 R) and the near surroundings (1.5, 2.0 R). Choice made here (5-fold CV on the
+#: training generator, DEVELOPERS.md).
+RING_RADII = (0.2, 0.4, 0.6, 0.8, 1.0, 1.2, 1.5, 2.0)
+RING_ORDERS = (1, 2, 3, 4)
+#: Their column names, orders then rings.
+RING_COLUMNS = tuple(f"ring_h{k}_r{round(100 * rho):03d}" for k in RING_ORDERS for rho in RING_RADII)
 
 FIELDS = (
     Field("ellipse_major_m", "m", "float64", "Major axis (full length) of the rim-crest ellipse.",
@@ -53,6 +61,16 @@ FIELDS = (
           "Distance of the deep cavity's centroid from the rim-crest centre, in crater radii.",
           "area-weighted centroid of the cavity below half the depth, inside 0.8 R, from the 64 profiles",
           "defined here", has_error=True),
+    *(Field(f"ring_h{k}_r{round(100 * rho):03d}", "1", "float64",
+            f"Amplitude of azimuthal harmonic {k} of the detrended elevation on the ring at {rho:g} crater "
+            "radii, over the rim-to-floor relief (0 = axisymmetric there).",
+            "linear interpolation of the 64 profiles to the ring; ring mean removed; DFT amplitude "
+            "2|sum (z - mean) exp(-i k theta)| / n_valid over the relief of the azimuth-mean profile "
+            "(highest point 0.8-1.2 R minus lowest inside 1 R); NaN with fewer than a quarter of the "
+            "azimuths valid",
+            "defined here (azimuthal Fourier amplitudes as for crater outlines, Eppler et al. 1983, "
+            "JGR 88(S1):A213, from memory)")
+      for k in RING_ORDERS for rho in RING_RADII),
     Field("ejecta_flank_ratio", "1", "float64",
           "Outer-flank amplitude over rim height: ~1 when the flank continues the rim, ~0 when it ends there.",
           "e / h with e the (r/R)^-3 term of the robust 1.3-2.5 R annulus fit and h the rim height",

@@ -15,6 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
+# One definition of the rings, shared with the data dictionary that names their columns.
+from ..dictionary._morphometry import RING_COLUMNS, RING_ORDERS, RING_RADII
 from ._geometry import (
     fit_circle,
     fit_ellipse,
@@ -25,7 +27,8 @@ from ._geometry import (
     wquantile,
 )
 
-__all__ = ["azimuth_features", "profile_features", "crest_shape", "bowl_offset", "RIM_QUANTILE", "FLOOR_LEVEL"]
+__all__ = ["azimuth_features", "profile_features", "crest_shape", "bowl_offset", "ring_harmonics",
+           "ring_columns", "RIM_QUANTILE", "FLOOR_LEVEL", "RING_RADII", "RING_ORDERS"]
 
 #: Rim elevation = this quantile of per-azimuth crest elevations (Breton et al. 2019 use the
 #: 60th percentile of rim elevations).
@@ -38,6 +41,8 @@ CREST_STEP = 0.1
 FEATURE_THRESHOLD = 0.1
 #: Radius (crater radii) within which a central pit is sought.
 PIT_ZONE = 0.2
+#: Fewest valid azimuths, as a share of the profiles, for a ring's harmonics (choice made here).
+RING_MIN_SHARE = 0.25
 
 
 def crest_shape(zd, r_norm, crest_r, crest_z, radius_m):
@@ -347,3 +352,63 @@ def profile_features(m, r_norm, radius_m, rim_z):
         "cavity_volume_m3": volume,
         "rim_flank_decay_exponent": flank_b,
     }
+
+
+def ring_columns() -> list[str]:
+    """Names of :func:`ring_harmonics`' columns, ``ring_h{k}_r{100 r/R:03d}``, orders then rings."""
+    return list(RING_COLUMNS)
+
+
+def ring_harmonics(zd, r_norm, theta, relief):
+    """Azimuthal harmonic amplitudes of the detrended elevation on rings at fixed r/R.
+
+    On each ring of :data:`RING_RADII` (profiles interpolated linearly in r), the
+    elevations around the crater minus their mean are projected on ``cos k theta`` and
+    ``sin k theta`` for the orders of :data:`RING_ORDERS`; the amplitude
+    ``sqrt(a_k^2 + b_k^2)`` is divided by the crater's ``relief``. An axisymmetric crater
+    gives 0 everywhere; order 1 is a tilt or offset of the cavity, 2 an elongation, 3 and 4
+    a triangular or square (polygonal, lobate) planform of the walls or rim at that radius.
+    The outline-radius harmonics (``rim_harmonic_k``) describe the crest line only; these
+    describe the topography inside and around it.
+
+    Parameters
+    ----------
+    zd : ndarray, shape (n, n_az, n_r)
+        Detrended profiles (metres above the plain), NaN = no data or masked.
+    r_norm : ndarray, shape (n_r,)
+        Radii of the samples in crater radii (increasing, covering the rings).
+    theta : ndarray, shape (n_az,)
+        Azimuths of the profiles (radians, evenly spaced).
+    relief : ndarray, shape (n,)
+        Rim-to-floor relief (m) the amplitudes are divided by; NaN or <= 0 gives NaN.
+
+    Returns
+    -------
+    dict of str to ndarray, shape (n,)
+        One entry per :func:`ring_columns` name. NaN where a ring has fewer valid
+        azimuths than :data:`RING_MIN_SHARE` of them.
+    """
+    zd = np.asarray(zd, dtype=np.float64)
+    n_az, n_r = zd.shape[1], zd.shape[2]
+    pos = np.interp(RING_RADII, r_norm, np.arange(n_r, dtype=np.float64))
+    j = np.minimum(np.floor(pos).astype(np.intp), n_r - 2)
+    f = pos - j
+    ring = zd[:, :, j] * (1.0 - f) + zd[:, :, j + 1] * f  # (n, n_az, n_ring)
+    ok = np.isfinite(ring)
+    cnt = ok.sum(1)  # (n, n_ring)
+    rel = np.asarray(relief, dtype=np.float64)
+    rel = np.where(np.isfinite(rel) & (rel > 0), rel, np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(ok, ring, 0.0).sum(1) / cnt
+        # The ring mean is removed first, so azimuths missing on one side do not leak
+        # the ring's level into the low orders.
+        dev = np.where(ok, ring - mean[:, None, :], 0.0)
+        k = np.asarray(RING_ORDERS, dtype=np.float64)[:, None] * np.asarray(theta, dtype=np.float64)[None, :]
+        a = np.einsum("nar,ka->nkr", dev, np.cos(k))
+        b = np.einsum("nar,ka->nkr", dev, np.sin(k))
+        amp = 2.0 * np.hypot(a, b) / cnt[:, None, :] / rel[:, None, None]
+    good = (cnt >= RING_MIN_SHARE * n_az)[:, None, :] & np.isfinite(amp)
+    amp = np.where(good, amp, np.nan)
+    names = ring_columns()
+    flat = amp.reshape(amp.shape[0], -1)  # orders then rings, as ring_columns()
+    return {name: flat[:, i] for i, name in enumerate(names)}

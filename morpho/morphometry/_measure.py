@@ -7,7 +7,7 @@ import pandas as pd
 
 from ._degradation import degradation_columns
 from ._detrend import FLANK_EXPONENT, annulus_rings
-from ._features import azimuth_features, bowl_offset, crest_shape, profile_features
+from ._features import azimuth_features, bowl_offset, crest_shape, profile_features, ring_harmonics
 from ._geometry import nanquantile_last, replicate_std
 from ._neighbours import NeighbourPairs, neighbour_context, neighbour_mask, neighbour_pairs
 from ._refine import (
@@ -88,6 +88,18 @@ class _Neighbours:
         return neighbour_mask(self.rows, self.cols, self.rad, self.pairs, idx, az, r_norm)
 
 
+def _relief(mean_prof, r_norm):
+    """Rim-to-floor relief (m) of azimuth-mean profiles: highest point within 0.8-1.2 R
+    minus lowest inside 1 R (the scale of :func:`ring_harmonics`)."""
+    near = (r_norm >= 0.8) & (r_norm <= 1.2)
+    inner = r_norm <= 1.0
+    top = np.where(np.isfinite(mean_prof[:, near]), mean_prof[:, near], -np.inf).max(1)
+    low = np.where(np.isfinite(mean_prof[:, inner]), mean_prof[:, inner], np.inf).min(1)
+    with np.errstate(invalid="ignore"):
+        rel = top - low
+    return np.where(np.isfinite(rel) & (rel > 0), rel, np.nan)
+
+
 def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body, mask=None, cover=0.0):
     prof, zd, coef = detrended_profiles(z, rows, cols, rad, n_azimuths, mask=mask)
     r_norm, az = prof.r_norm, prof.azimuths
@@ -104,6 +116,7 @@ def _measure_chunk(z, rows, cols, rad, spacing, n_azimuths, boot_idx, body, mask
     rim_z = az_point["rim_z"]
     point = _combine(az_point, profile_features(mean_prof, r_norm, radius_m, rim_z))
     point["bowl_offset"] = bowl_offset(zd, r_norm, az)
+    point.update(ring_harmonics(zd, r_norm, az, _relief(mean_prof, r_norm)))
     with np.errstate(invalid="ignore", divide="ignore"):
         # The annulus fit's r^-3 term over the rim height: ~1 for a flank continuous with
         # the rim (McGetchin et al. 1973 ejecta), ~0 for a lip that ends near the rim.
