@@ -118,6 +118,41 @@ def run_survey(dem: Path, workers: int, out: Path) -> dict:
             "work": sum(stages.get(k, 0.0) for k in AREA_STAGES), "stages": stages}
 
 
+#: The machine's own parallel speed-up, measured beside the surveys: a fixed job of Gaussian passes
+#: and resampling over a 2048^2 tile (the kind of work a tile does, in one process, one BLAS thread),
+#: run alone and then as two copies at once. On a shared VM the second core is not always a whole
+#: core; the survey's 2-vs-1 ratio is read against this one.
+_PROBE = """
+import time, numpy as np
+from scipy import ndimage as nd
+a = np.random.default_rng(0).random((2048, 2048))
+yy, xx = np.mgrid[0:2048, 0:2048].astype(float)
+t = time.perf_counter()
+for _ in range(6):
+    b = nd.gaussian_filter(a, 4.0)
+    c = nd.map_coordinates(b, [yy + 0.3, xx + 0.7], order=1)
+    a = np.where(np.isfinite(c), c - c.mean(), 0.0)
+print(time.perf_counter() - t)
+"""
+
+
+def _probe_jobs(k: int) -> list[float]:
+    """Start ``k`` probe jobs at once; each one's compute seconds."""
+    from morpho._runtime import WORKER_ENVIRON
+
+    env = {**os.environ, **WORKER_ENVIRON, "OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1"}
+    procs = [subprocess.Popen([sys.executable, "-c", _PROBE], stdout=subprocess.PIPE, text=True, env=env)
+             for _ in range(k)]
+    return [float(p.communicate()[0].strip()) for p in procs]
+
+
+def machine_ratio() -> float:
+    """Two probe jobs run at once against one alone: ``2 t_alone / t_together`` (2.0 = two whole cores)."""
+    alone = _probe_jobs(1)[0]
+    together = max(_probe_jobs(2))
+    return 2.0 * alone / together
+
+
 def same_tables(a: Path, b: Path) -> bool:
     """The craters layers of two runs hold the same rows and values (geometry aside)."""
     import pandas as pd
@@ -153,12 +188,14 @@ def main(argv=None):
     ap.add_argument("--render-only", action="store_true",
                     help="rewrite survey.md/png from the last run's results/survey.json")
     ap.add_argument("--note", default="", help="a remark printed under the tables (e.g. on the machine's load)")
+    ap.add_argument("--probe", action="store_true",
+                    help="measure the machine's own 2-vs-1 speed-up before and after the largest DEM's runs")
     args = ap.parse_args(argv)
     if args.render_only:
         saved = json.loads((HERE / "results" / "survey.json").read_text())
         args.workers, args.repeat = saved["workers"], saved["repeat"]
         args.note = args.note or saved.get("note", "")
-        write_results(saved["rows"], args, saved["loads"], saved["reference"])
+        write_results(saved["rows"], args, saved["loads"], saved["reference"], saved.get("probes", []))
         if args.note != saved.get("note", ""):
             saved["note"] = args.note
             (HERE / "results" / "survey.json").write_text(json.dumps(saved, indent=1, default=float) + "\n")
@@ -173,11 +210,14 @@ def main(argv=None):
     ref_dem = make_dem(args.reference, args.folder) if args.reference else None
     runs: dict = {}
     outs: dict = {}
+    probes: dict = {}
     ref_runs = []
     for rnd in range(args.repeat):
         if ref_dem is not None:
             ref_runs.append(run_survey(ref_dem, 1, args.folder / f"out_{args.reference}_1.gpkg"))
         for n in args.sizes:
+            if args.probe and n == max(args.sizes):
+                probes.setdefault(rnd, []).append(machine_ratio())
             for w in args.workers:
                 outs[n, w] = args.folder / f"out_{n}_{w}.gpkg"
                 r = run_survey(dems[n], w, outs[n, w])
@@ -185,6 +225,10 @@ def main(argv=None):
                 loads.append(os.getloadavg()[0])
                 print(f"round {rnd + 1}: {n}^2 workers={w}: {r['seconds']:.1f} s whole, {r['work']:.1f} s survey "
                       f"work, peak {r['peak'] / 2**30:.2f} GiB", flush=True)
+            if args.probe and n == max(args.sizes):
+                probes[rnd].append(machine_ratio())
+                print(f"round {rnd + 1}: machine 2-vs-1 ratio before/after: "
+                      f"{probes[rnd][0]:.2f}x / {probes[rnd][1]:.2f}x", flush=True)
     if ref_runs:
         ref = _median_run(ref_runs)
         ref.update(n=args.reference, mpx=args.reference**2 / 1e6)
@@ -203,9 +247,9 @@ def main(argv=None):
     (HERE / "results").mkdir(exist_ok=True)
     (HERE / "results" / "survey.json").write_text(json.dumps(
         {"workers": args.workers, "repeat": args.repeat, "loads": loads, "reference": ref, "rows": rows,
-         "note": args.note},
+         "note": args.note, "probes": [probes[k] for k in sorted(probes)]},
         indent=1, default=float) + "\n")
-    write_results(rows, args, loads, ref)
+    write_results(rows, args, loads, ref, [probes[k] for k in sorted(probes)])
 
 
 def _linear_fit(rows):
@@ -218,7 +262,7 @@ def _linear_fit(rows):
     return float(a), float(b)
 
 
-def write_results(rows, args, loads, ref=None):
+def write_results(rows, args, loads, ref=None, probes=()):
     machine = (f"{platform.machine()}, {os.cpu_count()} cores, "
                f"{psutil.virtual_memory().total / 2**30:.0f} GiB RAM, Python {platform.python_version()}")
     lines = [
@@ -288,7 +332,7 @@ def write_results(rows, args, loads, ref=None):
             ok = "met" if worst <= LINEAR_TOLERANCE else "NOT met"
             lines.append(f"- {w} worker(s): " + ", ".join(f"{r['n']}^2 {p:.2f}" for r, p in zip(sel, per, strict=True))
                          + f" s/Mpx; largest deviation from the median {worst:.0%} -> {ok}.")
-    lines += ["", *issue_figures(rows)]
+    lines += ["", *issue_figures(rows, probes)]
     if args.note:
         lines += ["", f"Note: {args.note}"]
     (HERE / "results").mkdir(exist_ok=True)
@@ -296,7 +340,7 @@ def write_results(rows, args, loads, ref=None):
     plot(rows, args)
 
 
-def issue_figures(rows) -> list[str]:
+def issue_figures(rows, probes=()) -> list[str]:
     """The issue's end-to-end targets, judged on the largest DEM of the run (whole-command times)."""
     big = max(r["n"] for r in rows)
     at = {r["workers"]: r for r in rows if r["n"] == big}
@@ -318,6 +362,14 @@ def issue_figures(rows) -> list[str]:
             ratios = sorted(a / b for a, b in pairs)
             out.append(f"  (per round, runs a few minutes apart: {', '.join(f'{x:.2f}x' for x in ratios)}; "
                        f"median {statistics.median(ratios):.2f}x)")
+        if probes and len(probes) == len(pairs):
+            # Per round, in run order: the survey's ratio beside the machine's own (probe before / after).
+            out.append("  Machine's own 2-vs-1 speed-up beside each round (a probe job alone, then two at once; "
+                       "2.00x = two whole cores), in run order:")
+            for i, ((a, b), (p0, p1)) in enumerate(zip(pairs, probes, strict=True)):
+                share = (a / b) / (0.5 * (p0 + p1))
+                out.append(f"  - round {i + 1}: survey {a / b:.2f}x; machine {p0:.2f}x before, {p1:.2f}x after; "
+                           f"survey / machine {share:.2f}")
     same = all(r["same"] for r in rows)
     out.append(f"- craters tables identical between worker counts at every size: {'yes' if same else 'NO'} "
                "(serial/local/remote scheduler: tests/test_scale.py)")
