@@ -16,10 +16,10 @@ _BRETON = "Breton et al. 2019, MethodsX 6:2293-2304"
 _MEAN = "on the mean profile; "
 _COMMON = "common practice"
 #: Rings (crater radii) and azimuthal orders of the ``ring_h{k}_r{100 r/R}`` columns
-#: (:func:`morpho.morphometry._features.ring_harmonics`): the cavity (0.2-0.8 R), the rim
-#: (1.0, 1.2 R) and the near surroundings (1.5, 2.0 R). Choice made here (5-fold CV on the
-#: training generator, DEVELOPERS.md).
-RING_RADII = (0.2, 0.4, 0.6, 0.8, 1.0, 1.2, 1.5, 2.0)
+#: (:func:`morpho.morphometry._features.ring_harmonics`): the cavity (0.2-0.8 R) and the rim
+#: crest (1.0 R). Rings outside the rim (1.2, 1.5, 2.0 R) added nothing in 5-fold CV on the
+#: training generator and describe the surroundings more than the crater (DEVELOPERS.md).
+RING_RADII = (0.2, 0.4, 0.6, 0.8, 1.0)
 RING_ORDERS = (1, 2, 3, 4)
 #: Their column names, orders then rings.
 RING_COLUMNS = tuple(f"ring_h{k}_r{round(100 * rho):03d}" for k in RING_ORDERS for rho in RING_RADII)

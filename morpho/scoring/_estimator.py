@@ -38,7 +38,7 @@ __all__ = ["ImpactSpotClassifier", "log10_lr_from_p", "CONTEXT_FEATURES", "TYPIC
 #: overlap with neighbouring craters (morpho.morphometry._neighbours).
 CONTEXT_FEATURES = ("pixels_per_diameter", "neighbour_cover", "neighbour_overlap",
                     "neighbour_size_log_ratio", "inside_neighbour")
-#: Left out of typicality besides the context: the 32 ring-harmonic amplitudes
+#: Left out of typicality besides the context: the 20 ring-harmonic amplitudes
 #: (``ring_h{k}_r{...}``) would outnumber the 33 other shape features in the k-NN distance, so
 #: a crater's typicality would mostly measure small azimuthal detail. They feed the classifier.
 TYPICALITY_EXCLUDE = CONTEXT_FEATURES + RING_COLUMNS
@@ -119,7 +119,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         Features (by name) left out of typicality: resolution and crowding are not
         morphology; a crater seen at more pixels, or among more neighbours, than any
         training crater is not thereby atypical. The ring harmonics are left out too, so
-        that 32 small-detail amplitudes do not outweigh the other shape features.
+        that 20 small-detail amplitudes do not outweigh the other shape features.
     random_state : int, RandomState or None, default=None
         Seeds the boosting, the calibration folds and the reference subsample.
 
