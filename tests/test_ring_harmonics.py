@@ -62,7 +62,7 @@ def test_amplitudes_match_numpy_fft(k, amp, phase, level, relief, seed):
 
 def test_ring_between_samples_is_interpolated_linearly():
     # z linear in r on every azimuth: the interpolated ring is exact wherever it falls.
-    r_coarse = np.linspace(0.0, 2.5, 41)  # 0.0625 steps: 0.2, 0.6, 1.5 ... fall between samples
+    r_coarse = np.linspace(0.0, 2.5, 41)  # 0.0625 steps: 0.2, 0.4, 0.6 fall between samples
     zd = (np.cos(2 * THETA)[:, None] * r_coarse[None, :])[None]
     out = ring_harmonics(zd, r_coarse, THETA, np.array([1.0]))
     for rho in RING_RADII:

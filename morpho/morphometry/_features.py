@@ -369,7 +369,7 @@ def ring_harmonics(zd, r_norm, theta, relief):
     gives 0 everywhere; order 1 is a tilt or offset of the cavity, 2 an elongation, 3 and 4
     a triangular or square (polygonal, lobate) planform of the walls or rim at that radius.
     The outline-radius harmonics (``rim_harmonic_k``) describe the crest line only; these
-    describe the topography inside and around it.
+    describe the topography of the cavity and the rim.
 
     Parameters
     ----------
