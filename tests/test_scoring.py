@@ -124,7 +124,7 @@ def test_tree_attributions_equal_the_generic_occlusion(toy_model, held_out):
     # path rescoring every occluded copy is the reference. Some values are made missing
     # so that the trees' NaN branches are exercised too.
     X, _ = held_out
-    rows = X.iloc[:300].copy()
+    rows = X.iloc[:max(300, ImpactSpotClassifier.TREE_PATH_MIN_ROWS)].copy()  # large enough for the tree path
     rng = np.random.default_rng(0)
     rows = rows.mask(rng.random(rows.shape) < 0.1)
     assert toy_model._tree_parts() is not None, "fast path unavailable with this scikit-learn"

@@ -148,6 +148,9 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
 
     TYPICALITY_THRESHOLD = 0.01
     LR_THRESHOLD = 0.5
+    #: Fewest craters for which :meth:`attributions` re-evaluates trees feature by feature
+    #: (:meth:`_tree_attributions`) instead of rescoring every occluded copy; same result.
+    TREE_PATH_MIN_ROWS = 300
     VERDICTS = ("impact", "discharge", "neither", "undecided")
 
     def __init__(
@@ -492,7 +495,10 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             pushed the crater towards impact.
         """
         X = self._check(X)
-        trees = self._tree_parts()
+        # The tree path pays ~0.07 s of per-tree calls whatever the number of craters; the
+        # generic path grows with craters x features. Measured crossover: ~300 craters
+        # (66 features, 150 trees: 0.09 s each; 40 craters 0.07 vs 0.025 s, 3,000 0.5 vs 1.8 s).
+        trees = self._tree_parts() if X.shape[0] >= self.TREE_PATH_MIN_ROWS else None
         if trees is not None:
             return self._tree_attributions(X, trees, chunk_rows)
         n, p = X.shape
