@@ -89,3 +89,48 @@ def test_missing_azimuths_do_not_leak_the_ring_level_into_order_one():
     zd[:, :32, :] = np.nan
     out = ring_harmonics(zd, R_NORM, THETA, np.array([10.0]))
     assert max(abs(v[0]) for v in out.values()) < 1e-12
+
+
+@pytest.mark.parametrize("e", [0.05, 0.1, 0.2])
+def test_elongated_paraboloid_bowl_measured_end_to_end(e):
+    # Analytic source: the interior of morpho.shapes.crater_profile with interior exponent 2
+    # is z = h - d + d s^2 (a paraboloid; Pike 1977 d/D = 0.196, h/D = 0.036 for the fresh
+    # simple bowl). Stretched to semi-axes (1 + e) R and (1 - e) R, on a ring of radius rho R
+    # s^2 = rho^2 (A + B cos 2 theta) with B = (1/(1 - e)^2 - 1/(1 + e)^2) / 2, so order 2 has
+    # amplitude d rho^2 B over the relief d, and orders 1, 3, 4 vanish by symmetry. The
+    # measured relief (azimuth-mean profile) is a little smaller than d on an elongated rim,
+    # hence the 6 % tolerance; radii are scaled by the measured crest radius.
+    from morpho.morphometry import measure_craters
+    from morpho.shapes import crater_profile
+
+    pixel_m, d_px = 25.0, 60
+    side = 3 * d_px
+    c = (side - 1) / 2.0
+    yy, xx = np.mgrid[0:side, 0:side]
+    s = np.hypot((yy - c) / (1 - e), (xx - c) / (1 + e)) / (d_px / 2.0)
+    dia = d_px * pixel_m
+    z = crater_profile(s, 0.196 * dia, 0.036 * dia, interior_exponent=2.0)
+    m = measure_craters(z, pixel_m, [c], [c], [d_px / 2.0], n_boot=0, seed=0).iloc[0]
+    scale = m["diameter_m"] / 2.0 / pixel_m / (d_px / 2.0)
+    b = abs(1.0 / (1.0 - e) ** 2 - 1.0 / (1.0 + e) ** 2) / 2.0
+    for rho in (0.2, 0.4, 0.6, 0.8):
+        tag = f"r{round(100 * rho):03d}"
+        assert m[f"ring_h2_{tag}"] == pytest.approx((rho * scale) ** 2 * b, rel=0.06)
+        for k in (1, 3):
+            assert m[f"ring_h{k}_{tag}"] < 1e-3 * m[f"ring_h2_{tag}"] + 1e-6
+
+
+def test_round_paraboloid_bowl_has_no_ring_harmonics():
+    from morpho.morphometry import measure_craters
+    from morpho.shapes import crater_profile
+
+    pixel_m, d_px = 25.0, 60
+    side = 3 * d_px
+    c = (side - 1) / 2.0
+    yy, xx = np.mgrid[0:side, 0:side]
+    s = np.hypot(yy - c, xx - c) / (d_px / 2.0)
+    z = crater_profile(s, 0.196 * d_px * pixel_m, 0.036 * d_px * pixel_m, interior_exponent=2.0)
+    m = measure_craters(z, pixel_m, [c], [c], [d_px / 2.0], n_boot=0, seed=0).iloc[0]
+    # A centred round bowl sampled on 64 azimuths: only the square pixel grid's order 4
+    # could show, and it stays far below the elongated bowls' order-2 amplitudes (> 0.01).
+    assert max(m[c_] for c_ in ring_columns()) < 1e-3
