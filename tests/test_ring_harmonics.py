@@ -10,7 +10,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from morpho.dictionary import _morphometry
-from morpho.morphometry._features import RING_ORDERS, RING_RADII, ring_columns, ring_harmonics
+from morpho.morphometry import measure_craters
+from morpho.morphometry._features import RING_COLUMNS, RING_ORDERS, RING_RADII, ring_harmonics
+from morpho.shapes import crater_profile
 
 N_AZ = 64
 THETA = np.linspace(0.0, 2.0 * np.pi, N_AZ, endpoint=False)
@@ -24,8 +26,8 @@ def _profiles(func):
 
 def test_columns_are_documented_in_the_data_dictionary():
     names = {f.name for f in _morphometry.FIELDS}
-    assert set(ring_columns()) <= names
-    assert len(ring_columns()) == len(RING_RADII) * len(RING_ORDERS) == 20
+    assert set(RING_COLUMNS) <= names
+    assert len(RING_COLUMNS) == len(RING_RADII) * len(RING_ORDERS) == 20
 
 
 def test_axisymmetric_crater_has_no_harmonics():
@@ -91,6 +93,19 @@ def test_missing_azimuths_do_not_leak_the_ring_level_into_order_one():
     assert max(abs(v[0]) for v in out.values()) < 1e-12
 
 
+def _measured_bowl(e, pixel_m=25.0, d_px=60):
+    """A Pike-shaped paraboloid bowl stretched to semi-axes (1 + e) R (columns) and (1 - e) R
+    (rows), measured at its nominal centre and radius: (feature row, crest radius / R)."""
+    side = 3 * d_px
+    c = (side - 1) / 2.0
+    yy, xx = np.mgrid[0:side, 0:side]
+    s = np.hypot((yy - c) / (1 - e), (xx - c) / (1 + e)) / (d_px / 2.0)
+    dia = d_px * pixel_m
+    z = crater_profile(s, 0.196 * dia, 0.036 * dia, interior_exponent=2.0)
+    m = measure_craters(z, pixel_m, [c], [c], [d_px / 2.0], n_boot=0, seed=0).iloc[0]
+    return m, m["diameter_m"] / 2.0 / pixel_m / (d_px / 2.0)
+
+
 @pytest.mark.parametrize("e", [0.05, 0.1, 0.2])
 def test_elongated_paraboloid_bowl_measured_end_to_end(e):
     # Analytic source: the interior of morpho.shapes.crater_profile with interior exponent 2
@@ -100,18 +115,7 @@ def test_elongated_paraboloid_bowl_measured_end_to_end(e):
     # amplitude d rho^2 B over the relief d, and orders 1, 3, 4 vanish by symmetry. The
     # measured relief (azimuth-mean profile) is a little smaller than d on an elongated rim,
     # hence the 6 % tolerance; radii are scaled by the measured crest radius.
-    from morpho.morphometry import measure_craters
-    from morpho.shapes import crater_profile
-
-    pixel_m, d_px = 25.0, 60
-    side = 3 * d_px
-    c = (side - 1) / 2.0
-    yy, xx = np.mgrid[0:side, 0:side]
-    s = np.hypot((yy - c) / (1 - e), (xx - c) / (1 + e)) / (d_px / 2.0)
-    dia = d_px * pixel_m
-    z = crater_profile(s, 0.196 * dia, 0.036 * dia, interior_exponent=2.0)
-    m = measure_craters(z, pixel_m, [c], [c], [d_px / 2.0], n_boot=0, seed=0).iloc[0]
-    scale = m["diameter_m"] / 2.0 / pixel_m / (d_px / 2.0)
+    m, scale = _measured_bowl(e)
     b = abs(1.0 / (1.0 - e) ** 2 - 1.0 / (1.0 + e) ** 2) / 2.0
     for rho in (0.2, 0.4, 0.6, 0.8):
         tag = f"r{round(100 * rho):03d}"
@@ -121,16 +125,7 @@ def test_elongated_paraboloid_bowl_measured_end_to_end(e):
 
 
 def test_round_paraboloid_bowl_has_no_ring_harmonics():
-    from morpho.morphometry import measure_craters
-    from morpho.shapes import crater_profile
-
-    pixel_m, d_px = 25.0, 60
-    side = 3 * d_px
-    c = (side - 1) / 2.0
-    yy, xx = np.mgrid[0:side, 0:side]
-    s = np.hypot(yy - c, xx - c) / (d_px / 2.0)
-    z = crater_profile(s, 0.196 * d_px * pixel_m, 0.036 * d_px * pixel_m, interior_exponent=2.0)
-    m = measure_craters(z, pixel_m, [c], [c], [d_px / 2.0], n_boot=0, seed=0).iloc[0]
+    m, _ = _measured_bowl(0.0)
     # A centred round bowl sampled on 64 azimuths: only the square pixel grid's order 4
     # could show, and it stays far below the elongated bowls' order-2 amplitudes (> 0.01).
-    assert max(m[c_] for c_ in ring_columns()) < 1e-3
+    assert max(m[name] for name in RING_COLUMNS) < 1e-3

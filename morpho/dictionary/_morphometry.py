@@ -21,8 +21,14 @@ _COMMON = "common practice"
 #: training generator and describe the surroundings more than the crater (DEVELOPERS.md).
 RING_RADII = (0.2, 0.4, 0.6, 0.8, 1.0)
 RING_ORDERS = (1, 2, 3, 4)
-#: Their column names, orders then rings.
-RING_COLUMNS = tuple(f"ring_h{k}_r{round(100 * rho):03d}" for k in RING_ORDERS for rho in RING_RADII)
+
+
+def _ring_name(k, rho):
+    return f"ring_h{k}_r{round(100 * rho):03d}"
+
+
+#: Column names of the ring harmonics, orders then rings.
+RING_COLUMNS = tuple(_ring_name(k, rho) for k in RING_ORDERS for rho in RING_RADII)
 
 FIELDS = (
     Field("ellipse_major_m", "m", "float64", "Major axis (full length) of the rim-crest ellipse.",
@@ -61,7 +67,7 @@ FIELDS = (
           "Distance of the deep cavity's centroid from the rim-crest centre, in crater radii.",
           "area-weighted centroid of the cavity below half the depth, inside 0.8 R, from the 64 profiles",
           "defined here", has_error=True),
-    *(Field(f"ring_h{k}_r{round(100 * rho):03d}", "1", "float64",
+    *(Field(_ring_name(k, rho), "1", "float64",
             f"Amplitude of azimuthal harmonic {k} of the detrended elevation on the ring at {rho:g} crater "
             "radii, over the rim-to-floor relief (0 = axisymmetric there).",
             "linear interpolation of the 64 profiles to the ring; ring mean removed; DFT amplitude "

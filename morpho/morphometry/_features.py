@@ -28,7 +28,7 @@ from ._geometry import (
 )
 
 __all__ = ["azimuth_features", "profile_features", "crest_shape", "bowl_offset", "ring_harmonics",
-           "ring_columns", "RIM_QUANTILE", "FLOOR_LEVEL", "RING_RADII", "RING_ORDERS"]
+           "RIM_QUANTILE", "FLOOR_LEVEL", "RING_COLUMNS", "RING_RADII", "RING_ORDERS"]
 
 #: Rim elevation = this quantile of per-azimuth crest elevations (Breton et al. 2019 use the
 #: 60th percentile of rim elevations).
@@ -354,11 +354,6 @@ def profile_features(m, r_norm, radius_m, rim_z):
     }
 
 
-def ring_columns() -> list[str]:
-    """Names of :func:`ring_harmonics`' columns, ``ring_h{k}_r{100 r/R:03d}``, orders then rings."""
-    return list(RING_COLUMNS)
-
-
 def ring_harmonics(zd, r_norm, theta, relief):
     """Azimuthal harmonic amplitudes of the detrended elevation on rings at fixed r/R.
 
@@ -385,7 +380,7 @@ def ring_harmonics(zd, r_norm, theta, relief):
     Returns
     -------
     dict of str to ndarray, shape (n,)
-        One entry per :func:`ring_columns` name. NaN where a ring has fewer valid
+        One entry per name of :data:`RING_COLUMNS` (orders then rings). NaN where a ring has fewer valid
         azimuths than :data:`RING_MIN_SHARE` of them.
     """
     zd = np.asarray(zd, dtype=np.float64)
@@ -409,6 +404,5 @@ def ring_harmonics(zd, r_norm, theta, relief):
         amp = 2.0 * np.hypot(a, b) / cnt[:, None, :] / rel[:, None, None]
     good = (cnt >= RING_MIN_SHARE * n_az)[:, None, :] & np.isfinite(amp)
     amp = np.where(good, amp, np.nan)
-    names = ring_columns()
-    flat = amp.reshape(amp.shape[0], -1)  # orders then rings, as ring_columns()
-    return {name: flat[:, i] for i, name in enumerate(names)}
+    flat = amp.reshape(amp.shape[0], -1)  # orders then rings, as RING_COLUMNS
+    return {name: flat[:, i] for i, name in enumerate(RING_COLUMNS)}

@@ -403,11 +403,11 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         out[~ok_imp & ~ok_spot] = "neither"
         return out
 
-    @_single_thread
     def _tree_parts(self):
         """The fitted boosted trees behind ``p_impact``, for :meth:`_tree_attributions`.
 
-        Returns ``(hgb, calibrator, trees, features_of_tree, bitsets, f_idx_map)``, or
+        Returns ``(baseline, calibrator, trees, trees_of_feature, bitsets, f_idx_map)``
+        (``trees_of_feature[j]``: indices of the trees that split on feature j), or
         None when the fitted objects do not expose them (no calibrated model, another
         calibration method, or a scikit-learn whose private tree layout differs): the
         generic occlusion then runs, with the same result.
@@ -422,14 +422,17 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             if hgb.n_trees_per_iteration_ != 1:
                 return None
             trees = [it[0] for it in hgb._predictors]
-            used = [np.unique(t.nodes["feature_idx"][~t.nodes["is_leaf"].astype(bool)]) for t in trees]
+            trees_of = [[] for _ in range(self.n_features_in_)]
+            for i, t in enumerate(trees):
+                for j in np.unique(t.nodes["feature_idx"][~t.nodes["is_leaf"].astype(bool)]):
+                    trees_of[j].append(i)
             bitsets, f_idx_map = hgb._bin_mapper.make_known_categories_bitsets()
             baseline = np.asarray(hgb._baseline_prediction, dtype=np.float64).reshape(-1)
             if baseline.size != 1 or not hasattr(trees[0], "predict"):
                 return None
         except (AttributeError, TypeError, ValueError, KeyError, IndexError):
             return None
-        return hgb, cal.calibrators[0], trees, used, bitsets, f_idx_map
+        return float(baseline[0]), cal.calibrators[0], trees, trees_of, bitsets, f_idx_map
 
     def _tree_attributions(self, X, parts, chunk_rows):
         """:meth:`attributions` re-evaluating only the trees that split on each feature.
@@ -441,12 +444,11 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
         to floating-point rounding of the sum (tested), at a fraction of the cost (most
         features are used by a few of the trees).
         """
-        hgb, calibrator, trees, used, bitsets, f_idx_map = parts
+        baseline, calibrator, trees, trees_of, bitsets, f_idx_map = parts
         n, p = X.shape
         out = np.zeros((n, p))
         Xb = np.ascontiguousarray(self._boost_input(X))
         center = self._boost_input(self.center_[None, :])[0]
-        baseline = float(np.asarray(hgb._baseline_prediction).reshape(-1)[0])
 
         def predict(tree, rows):
             return tree.predict(rows, bitsets, f_idx_map, 1)
@@ -456,7 +458,6 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
             prob = np.where((prob > 1.0) & (prob <= 1.0 + 1e-5), 1.0, prob)  # as CalibratedClassifierCV
             return log10_lr_from_p(prob)
 
-        trees_of = [[i for i, u in enumerate(used) if j in u] for j in range(p)]
         step = max(1, int(chunk_rows) // max(len(trees), 1))
         for start in range(0, n, step):
             block = Xb[start:start + step]
@@ -481,6 +482,7 @@ class ImpactSpotClassifier(ClassifierMixin, BaseEstimator):
                 out[start + todo, j] = base[todo] - lr_of(raw[todo] - change)
         return out
 
+    @_single_thread
     def attributions(self, X, chunk_rows=200_000):
         """Change of ``log10_lr`` when each feature is replaced by the training median.
 
