@@ -23,6 +23,7 @@ Run: ``python benchmarks/bench_survey.py [--sizes 1024 2048 4096 8192] [--worker
 from __future__ import annotations
 
 import argparse
+import itertools
 import json
 import os
 import platform
@@ -46,6 +47,8 @@ CRATERS_PER_MPX = 40
 AREA_STAGES = ("open", "tiles", "merge", "finish", "write")
 #: issue #9: time per Mpx constant within +/- this fraction from 1024^2 to 8192^2
 LINEAR_TOLERANCE = 0.25
+#: DEMs up to this size (Mpx) run ``--small-repeat`` times per round
+SMALL_MPX = 4.2
 _STAGE = re.compile(r"(start-up|model wait|cluster|warm-up|open|tiles|merge|finish|write) ([0-9.]+)")
 
 
@@ -182,6 +185,9 @@ def main(argv=None):
     ap.add_argument("--sizes", type=int, nargs="+", default=[1024, 2048, 4096, 8192])
     ap.add_argument("--workers", type=int, nargs="+", default=[1, 2])
     ap.add_argument("--repeat", type=int, default=3, help="runs per configuration (medians reported)")
+    ap.add_argument("--small-repeat", type=int, default=3,
+                    help="runs per round of DEMs up to 4 Mpx (a few seconds each, so their medians cost little "
+                         "and their noise matters most to the scaling figure)")
     ap.add_argument("--reference", type=int, default=256,
                     help="small DEM (1 worker) whose survey work measures the size-independent part; 0: none")
     ap.add_argument("--folder", type=Path, default=Path(tempfile.gettempdir()) / "morpho_bench")
@@ -194,6 +200,7 @@ def main(argv=None):
     if args.render_only:
         saved = json.loads((HERE / "results" / "survey.json").read_text())
         args.workers, args.repeat = saved["workers"], saved["repeat"]
+        args.small_repeat = saved.get("small_repeat", 1)
         args.note = args.note or saved.get("note", "")
         write_results(saved["rows"], args, saved["loads"], saved["reference"], saved.get("probes", []))
         if args.note != saved.get("note", ""):
@@ -218,13 +225,14 @@ def main(argv=None):
         for n in args.sizes:
             if args.probe and n == max(args.sizes):
                 probes.setdefault(rnd, []).append(machine_ratio())
-            for w in args.workers:
-                outs[n, w] = args.folder / f"out_{n}_{w}.gpkg"
-                r = run_survey(dems[n], w, outs[n, w])
-                runs.setdefault((n, w), []).append(r)
-                loads.append(os.getloadavg()[0])
-                print(f"round {rnd + 1}: {n}^2 workers={w}: {r['seconds']:.1f} s whole, {r['work']:.1f} s survey "
-                      f"work, peak {r['peak'] / 2**30:.2f} GiB", flush=True)
+            for _ in range(args.small_repeat if n * n <= SMALL_MPX * 1e6 else 1):
+                for w in args.workers:
+                    outs[n, w] = args.folder / f"out_{n}_{w}.gpkg"
+                    r = run_survey(dems[n], w, outs[n, w])
+                    runs.setdefault((n, w), []).append(r)
+                    loads.append(os.getloadavg()[0])
+                    print(f"round {rnd + 1}: {n}^2 workers={w}: {r['seconds']:.1f} s whole, {r['work']:.1f} s "
+                          f"survey work, peak {r['peak'] / 2**30:.2f} GiB", flush=True)
             if args.probe and n == max(args.sizes):
                 probes[rnd].append(machine_ratio())
                 print(f"round {rnd + 1}: machine 2-vs-1 ratio before/after: "
@@ -246,7 +254,7 @@ def main(argv=None):
                   f"[{', '.join(f'{k} {v:.2f}' for k, v in sorted(r['stages'].items()))}]", flush=True)
     (HERE / "results").mkdir(exist_ok=True)
     (HERE / "results" / "survey.json").write_text(json.dumps(
-        {"workers": args.workers, "repeat": args.repeat, "loads": loads, "reference": ref, "rows": rows,
+        {"workers": args.workers, "repeat": args.repeat, "small_repeat": args.small_repeat, "loads": loads, "reference": ref, "rows": rows,
          "note": args.note, "probes": [probes[k] for k in sorted(probes)]},
         indent=1, default=float) + "\n")
     write_results(rows, args, loads, ref, [probes[k] for k in sorted(probes)])
@@ -269,7 +277,7 @@ def write_results(rows, args, loads, ref=None, probes=()):
         f"Machine: {machine}; load average during the runs {min(loads):.1f}-{max(loads):.1f} (1 min; "
         "the machine is shared, so wall times are noisy). Synthetic lunar DEMs at "
         f"{PIXEL_M:g} m/px, {CRATERS_PER_MPX} craters/Mpx; default settings; median of {args.repeat} runs "
-        "per row (peak memory: the largest).",
+        f"per row ({args.repeat * args.small_repeat} for DEMs up to {SMALL_MPX:g} Mpx; peak memory: the largest).",
         "",
         "- **whole s**: wall time of the whole `morpho survey` command, process start to exit "
         "(incl. Python start-up, imports, scoring model, Dask workers, scoring, statistics, GeoPackage).",
@@ -332,6 +340,18 @@ def write_results(rows, args, loads, ref=None, probes=()):
             ok = "met" if worst <= LINEAR_TOLERANCE else "NOT met"
             lines.append(f"- {w} worker(s): " + ", ".join(f"{r['n']}^2 {p:.2f}" for r, p in zip(sel, per, strict=True))
                          + f" s/Mpx; largest deviation from the median {worst:.0%} -> {ok}.")
+    lines += ["", "Cost of each added Mpx between consecutive sizes, (t_k - t_k-1) / (Mpx_k - Mpx_k-1): the slope "
+              "of time against area, free of the parts that do not grow with it (linear scaling = one slope):", ""]
+    for w in args.workers:
+        sel = sorted((r for r in rows if r["workers"] == w), key=lambda r: r["n"])
+        if len(sel) < 3:
+            continue
+        for key, label in (("seconds", "whole command"), ("work", "survey work")):
+            steps = [(b["n"], (b[key] - a[key]) / (b["mpx"] - a["mpx"])) for a, b in itertools.pairwise(sel)]
+            med = statistics.median(p for _, p in steps)
+            worst = max(abs(p / med - 1) for _, p in steps)
+            lines.append(f"- {w} worker(s), {label}: " + ", ".join(
+                f"to {n}^2 {p:.2f}" for n, p in steps) + f" s/Mpx; largest deviation from the median {worst:.0%}.")
     lines += ["", *issue_figures(rows, probes)]
     if args.note:
         lines += ["", f"Note: {args.note}"]
