@@ -90,7 +90,7 @@ def test_local_cluster_and_remote_scheduler_match_serial(serial, crater_dem, tmp
     parts_log = tmp_path / "population_parts.txt"
     part = survey_module._population_part
 
-    def logged_part(*args):  # the CSR simulations' measures, split between the two workers
+    def logged_part(*args):  # the CSR simulations' measures, split between the worker and this process
         with open(parts_log, "a") as fh:
             fh.write(f"{os.getpid()}:{args[-2]}\n")
         return part(*args)
@@ -103,7 +103,9 @@ def test_local_cluster_and_remote_scheduler_match_serial(serial, crater_dem, tmp
     assert len(pids) == 1 and int(pids[0]) != os.getpid()  # once, on a worker
     parts = dict(line.split(":")[::-1] for line in parts_log.read_text().split())
     assert sorted(parts) == ["0", str(survey_module.SIMULATIONS_BESIDE_SCORING)]
-    assert len(set(parts.values())) == 2 and str(os.getpid()) not in parts.values()
+    # With workers=2 this process is one of the two: it takes the later simulations while the
+    # Dask worker scores, then the first ones.
+    assert parts[str(survey_module.SIMULATIONS_BESIDE_SCORING)] == str(os.getpid()) != parts["0"]
     pd.testing.assert_frame_equal(_key(local.craters), _key(serial.craters))
     # The valid-data footprint comes from a worker here and from this process serially.
     assert local.footprint.geometry.iloc[0].equals_exact(serial.footprint.geometry.iloc[0], 0.0)

@@ -17,7 +17,9 @@ import contextlib
 import importlib
 import logging
 import os
+import threading
 import time
+from collections import deque
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -195,6 +197,13 @@ def run_tiles(
                     _record(spec, err=err)
                     continue
                 _record(spec, df=df)
+        elif todo and pool.shares:
+            t_warm = time.perf_counter()
+            pool.start_in_background()
+            _import_all(pool.warm_modules)  # this process runs tiles too: the same one-off set-up
+            run.warmup_seconds = time.perf_counter() - t_warm
+            _run_shared(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
+                        dict(background_tasks or {}), run.background, local_modules)
         elif todo:
             pool.start()
             _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
@@ -269,9 +278,16 @@ class TilePool:
         self.workers = workers
         self.scheduler = scheduler
         self.warm_modules = tuple(warm_modules)
+        #: On a local cluster this process is one of the ``n_workers``: it runs tiles beside
+        #: ``n_workers - 1`` Dask worker processes (see :func:`_run_shared`).
+        self.shares = scheduler is None and self.n_workers > 1
         self.client = None
         self._cluster = None
+        self._starter: threading.Thread | None = None
+        self._start_error: BaseException | None = None
         self.seconds = 0.0
+        #: Starting the local cluster while this process ran tiles (not a wait: not in ``seconds``).
+        self.background_start_seconds = 0.0
 
     def __enter__(self) -> TilePool:
         return self
@@ -283,11 +299,56 @@ class TilePool:
         """Whether ``n_tiles`` tiles go to Dask (see :func:`uses_dask`)."""
         return self.client is not None or uses_dask(n_tiles, self.workers, self.scheduler)
 
+    def start_in_background(self) -> None:
+        """Start the local cluster in a thread while this process goes on (see :meth:`wait_started`)."""
+        if self.client is not None or self._starter is not None:
+            return
+
+        def target():
+            t0 = time.perf_counter()
+            try:
+                self._start()
+            except BaseException as err:  # noqa: BLE001 - handed to the thread that waits
+                self._start_error = err
+            self.background_start_seconds = time.perf_counter() - t0
+
+        self._starter = threading.Thread(target=target, name="morpho-cluster-start", daemon=True)
+        self._starter.start()
+
+    @property
+    def started(self) -> bool:
+        """Whether the cluster is up (started in the background or not)."""
+        return self.client is not None and (self._starter is None or not self._starter.is_alive())
+
+    def wait_started(self) -> None:
+        """Wait for a background start; re-raise what it raised. The wait counts in ``seconds``."""
+        if self._starter is not None:
+            t0 = time.perf_counter()
+            self._starter.join()
+            self._starter = None
+            self.seconds += time.perf_counter() - t0
+            if self._start_error is not None:
+                err, self._start_error = self._start_error, None
+                raise err
+        elif self.client is None:
+            self.start()
+
     def start(self) -> None:
         """Start the local cluster (or connect to the scheduler) if not yet done."""
+        if self._starter is not None:
+            self.wait_started()
+            return
         if self.client is not None:
             return
         t0 = time.perf_counter()
+        try:
+            self._start()
+        finally:
+            self.seconds += time.perf_counter() - t0
+
+    def _start(self) -> None:
+        if self.client is not None:
+            return
         import dask
         from dask.distributed import Client, LocalCluster
 
@@ -311,17 +372,17 @@ class TilePool:
             # 3.4-4.5 s to 1.3-2.3 s per 60 s of tiles and the 16-tile run by 0.9-1.8 s (two
             # A/B pairs at 8192^2); memory limits are still checked every second.
             environ.update(_QUIET_TIMERS)
+            n_dask = self.n_workers - 1 if self.shares else self.n_workers
             with dask.config.set(environ), _environ(WORKER_ENVIRON):
-                self._cluster = LocalCluster(n_workers=self.n_workers, threads_per_worker=1, processes=True,
-                                             dashboard_address=None)
-            self.client = Client(self._cluster)
+                cluster = LocalCluster(n_workers=n_dask, threads_per_worker=1, processes=True,
+                                       dashboard_address=None)
+            self._cluster = cluster
+            client = Client(cluster)
         else:
-            self.client = Client(self.scheduler)
-        try:
-            if self.warm_modules:
-                self.client.run(_import_all, self.warm_modules)
-        finally:
-            self.seconds += time.perf_counter() - t0
+            client = Client(self.scheduler)
+        if self.warm_modules:
+            client.run(_import_all, self.warm_modules)
+        self.client = client
 
     def submit(self, func: Callable, *args, workers: Sequence[str] | None = None):
         """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
@@ -348,7 +409,14 @@ class TilePool:
 
     def close(self) -> None:
         """Close the client and the local cluster (idempotent)."""
+        if self._starter is not None:  # a background start still going: let it end first
+            self._starter.join()
+            self._starter = None
+            self._start_error = None
         if self.client is None:
+            if self._cluster is not None:  # the cluster came up but its client did not
+                self._cluster.close()
+                self._cluster = None
             return
         t0 = time.perf_counter()
         try:
@@ -418,3 +486,124 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
             record(spec, err=err)
             continue
         record(spec, df=df)
+
+
+def _run_shared(pool, func, first_arg, todo, extra_args, record, side_tasks, side, background_tasks, background,
+                local_modules) -> None:
+    """Run the tiles in this process and on the pool's Dask workers at once (a local cluster).
+
+    The cluster starts in the background (:meth:`TilePool.start_in_background`) while this
+    process takes its first tiles: starting worker processes (~2 s on two cores) no longer
+    holds up the tiles, and one process fewer pays a cold first tile. Each Dask worker holds
+    one tile at a time, the next handed out as soon as it finishes (a done-callback), so that at
+    the end this process never waits for tiles queued behind a worker's running one. Everyone
+    takes the largest tile left, so the last to end are the shortest. Once the cluster is up
+    the side and background tasks go to it as with :func:`_run_dask`. Every tile runs the same
+    function with the same arguments wherever it runs.
+    """
+    run = _SharedRun(pool, func, first_arg, todo, extra_args, record, side)
+    try:
+        run.tiles_here(side_tasks, background_tasks, background)
+        # This process has no tile left: its own one-off imports for after the tiles go here.
+        _import_all(local_modules)
+        run.wait_for_workers()
+    finally:
+        run.stop()
+
+
+class _SharedRun:
+    """State of :func:`_run_shared`: the queue of tiles, and the futures of those given to Dask."""
+
+    def __init__(self, pool, func, first_arg, todo, extra_args, record, side):
+        self.pool, self.func, self.first_arg, self.extra_args, self.record = pool, func, first_arg, extra_args, record
+        self.side = side
+        self.queue = deque(sorted(todo, key=lambda t: -t.height * t.width))
+        # Taking a tile off the queue and recording its future happen under one lock, so that
+        # when this process finds the queue empty, every tile given out is in ``futures``.
+        self.lock = threading.Lock()
+        self.futures: dict = {}
+        self.extra: dict = {}
+        self.harvested: set = set()
+        self.stopped = False
+
+    def hand_out(self, _done=None) -> None:
+        """Give the largest tile left to Dask; again when that one ends (Dask's callback thread)."""
+        with self.lock:
+            if self.stopped or not self.queue:
+                return
+            spec = self.queue.popleft()
+            fut = self.pool.client.submit(self.func, self.first_arg, spec, *self.extra_args, retries=1, pure=False,
+                                          key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
+            self.futures[fut] = spec
+        fut.add_done_callback(self.hand_out)
+
+    def take(self):
+        """The largest tile left for this process (the last ones are then short), or None."""
+        with self.lock:
+            return self.queue.popleft() if self.queue else None
+
+    def stop(self) -> None:
+        with self.lock:
+            self.stopped = True
+
+    def _on_ready(self, side_tasks, background_tasks, background) -> None:
+        for _ in range(self.pool.n_workers - 1):
+            self.hand_out()
+        self.extra.update({self.pool.submit(f, *args): name for name, (f, args) in side_tasks.items()})
+        for name, (f, args) in background_tasks.items():
+            background[name] = self.pool.submit(f, *args)
+
+    def tiles_here(self, side_tasks, background_tasks, background) -> None:
+        """Run tiles in this process until none is left; start Dask's share once the cluster is up."""
+        ready = False
+        while True:
+            if not ready and self.pool.started:
+                ready = True
+                self._on_ready(side_tasks, background_tasks, background)
+            self.harvest(block=False)
+            spec = self.take()
+            if spec is None:
+                break
+            try:
+                df = _run_one(self.func, self.first_arg, spec, self.extra_args)
+            except Exception as err:  # noqa: BLE001
+                self.record(spec, err=err)
+                continue
+            self.record(spec, df=df)
+        self.pool.wait_started()
+        if not ready:  # the cluster came up only after this process took the last tile
+            self._on_ready(side_tasks, background_tasks, background)
+
+    def harvest(self, *, block: bool) -> None:
+        """Record the Dask tiles (and side tasks) that have ended; with ``block``, wait for one first."""
+        from dask.distributed import wait
+
+        with self.lock:
+            pending = [f for f in (*self.futures, *self.extra) if f not in self.harvested]
+        if block and pending:
+            wait(pending, return_when="FIRST_COMPLETED")
+        for fut in pending:
+            if not fut.done():
+                continue
+            self.harvested.add(fut)
+            if fut in self.extra:
+                try:
+                    self.side[self.extra[fut]] = fut.result()
+                except Exception as err:  # noqa: BLE001 - the caller computes it itself
+                    log.debug("side task %s failed on a worker: %s", self.extra[fut], err)
+                continue
+            try:
+                df = fut.result()
+            except Exception as err:  # noqa: BLE001
+                self.record(self.futures[fut], err=err)
+                continue
+            self.record(self.futures[fut], df=df)
+
+    def wait_for_workers(self) -> None:
+        """Record every tile and side task still on Dask."""
+        while True:
+            with self.lock:
+                left = any(f not in self.harvested for f in (*self.futures, *self.extra))
+            if not left:
+                return
+            self.harvest(block=True)

@@ -281,6 +281,30 @@ class _SplitPopulation:
         return self._whole.result()
 
 
+class _SharedPopulation:
+    """The population statistics split between this process and the scoring worker.
+
+    When this process is one of the local workers (:attr:`TilePool.shares`), the scoring worker
+    (``where``) takes the first ``SIMULATIONS_BESIDE_SCORING`` simulations after the scores and
+    this process the others, then puts everything together: the same result as one call.
+    """
+
+    def __init__(self, pool, args, where):
+        self._args = args
+        self._head = pool.submit(_population_part, *args, 0, SIMULATIONS_BESIDE_SCORING,
+                                 workers=[where] if where else None)
+
+    def result(self):
+        tail = _population_part(*self._args, SIMULATIONS_BESIDE_SCORING, None)
+        return _population(*self._args, self._head.result(), tail)
+
+
+def _after_tiles(pool: TilePool) -> tuple:
+    """Modules this process needs after the tiles: the merge's, and the statistics' when it computes
+    part of them (a local cluster it works in, see :class:`_SharedPopulation`)."""
+    return (*MERGE_MODULES, "morpho.population.statistics") if pool.shares else MERGE_MODULES
+
+
 def _load_scorer(model):
     """The scoring model and its path (the shipped default when ``model`` is None or "default")."""
     from ..scoring import load_model
@@ -508,7 +532,9 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
             log.debug("scoring on %s (model ready there: %s), statistics on %s (imports ready on %s)",
                       where, where is not None, target, ready)
             args = (df[cols], info, footprint_src, seed)
-            if where is not None and target and where not in target:
+            if pool.shares:
+                population_job = _SharedPopulation(pool, args, where)
+            elif where is not None and target and where not in target:
                 population_job = _SplitPopulation(pool, args, where, target)
             else:
                 population_job = pool.submit(_population, *args, workers=target or None)
@@ -546,6 +572,8 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
     if len(df):
         t0 = time.perf_counter()
         if on_workers:
+            if pool.shares:  # this process's part of the statistics while the worker scores
+                pop, chains = population_job.result()
             df, loading = score_job.result()
             # Loaded by the scoring task itself when the warm-up did not reach that worker.
             timing["model_load"] += loading
@@ -560,7 +588,7 @@ def _finish(df: pd.DataFrame, info: DemInfo, *, seed: int, loader: _ScorerLoader
         else:
             df = apply_scores(df, info.body, fitted)
         t1 = time.perf_counter()
-        if helper is None:
+        if helper is None and not (on_workers and pool.shares):
             pop, chains = population_job.result()
             log.info("scaling + scoring %.1f s, then waited %.1f s for the population statistics (%d craters)",
                      t1 - t0, time.perf_counter() - t1, len(df))
@@ -732,7 +760,7 @@ def survey(
     spec = model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with loader, TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(survey_tile, info, specs, (params,), run_dir=None if run_dir is None else Path(run_dir),
-                        resume=resume, progress=progress, local_modules=MERGE_MODULES,
+                        resume=resume, progress=progress, local_modules=_after_tiles(pool),
                         side_tasks=_side_tasks(info), background_tasks=_background_tasks(spec), pool=pool)
         log.info("%d tiles in %.1f s (%d reused, %d failed)", len(specs), run.seconds, run.reused, len(run.failed))
         t_merge = time.perf_counter()
@@ -822,7 +850,7 @@ def measure(
     spec = model_spec(model, ship=scheduler is not None) if loader.deferred else None
     with loader, TilePool(workers=workers, scheduler=scheduler, warm_modules=TILE_MODULES) as pool:
         run = run_tiles(measure_tile, info, specs, (craters.loc[inside].reset_index(drop=True), params),
-                        progress=progress, local_modules=MERGE_MODULES, side_tasks=_side_tasks(info),
+                        progress=progress, local_modules=_after_tiles(pool), side_tasks=_side_tasks(info),
                         background_tasks=_background_tasks(spec), pool=pool)
         t_merge = time.perf_counter()
         frames = [f for f in run.results if len(f)]
