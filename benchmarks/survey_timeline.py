@@ -3,7 +3,8 @@
 Runs ``morpho survey`` in this process with Dask's task stream recorded from the moment the
 local cluster is up until it closes, then prints one line per task (worker, start and stop in
 seconds since the cluster came up, duration, task) and each worker's idle time between its first
-and last task. It shows where a 2-worker survey loses against twice a 1-worker one: each worker's
+and last task. On a local cluster the main process runs tiles too (not in the stream); the
+command's own summary gives its share. It shows where a 2-worker survey loses against twice a 1-worker one: each worker's
 first (cold) tile, the side tasks between tiles (model load, footprint, statistics imports), the
 last tiles ending apart, and the finish (scoring and statistics).
 
@@ -36,9 +37,9 @@ def main(argv=None):
     from morpho.cli.main import main as cli
 
     seen: dict = {}
-    start, close = engine.TilePool.start, engine.TilePool.close
+    start, close = engine.TilePool._start, engine.TilePool.close
 
-    def recording_start(self):
+    def recording_start(self):  # runs in the starting thread when the cluster starts in the background
         start(self)
         if "stream" not in seen and self.client is not None:
             seen["stream"] = get_task_stream(client=self.client)
@@ -51,7 +52,7 @@ def main(argv=None):
             seen["data"] = list(seen["stream"].data)
         close(self)
 
-    engine.TilePool.start, engine.TilePool.close = recording_start, recording_close
+    engine.TilePool._start, engine.TilePool.close = recording_start, recording_close
     with tempfile.TemporaryDirectory() as tmp:
         sys.argv = ["morpho", "survey", str(args.dem), "-o", str(Path(tmp) / "timeline.gpkg"),
                     "--workers", str(args.workers)]

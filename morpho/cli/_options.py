@@ -43,7 +43,7 @@ def run_options(f):
     f = click.option("--scheduler", default=None, metavar="tcp://HOST:PORT",
                      help="Send the tiles to an existing dask.distributed scheduler.")(f)
     f = click.option("--workers", type=int, default=None, callback=_positive,
-                     help="Local worker processes (default: all cores; 1 = in this process).")(f)
+                     help="Processes that run tiles, this one included (default: all cores; 1 = this process only).")(f)
     f = click.option("--seed", type=int, default=0, show_default=True,
                      help="Seed of every random step: same input + seed = same output.")(f)
     return f

@@ -34,8 +34,9 @@ def stage_seconds(result, *, startup: float | None = None, write: float | None =
     """Seconds per stage of a command: the survey's ``timing_s`` plus start-up and writing.
 
     Keys: ``start-up`` (Python, imports, option parsing), ``model wait`` (loading the scoring
-    model: before in-process tiles, after Dask tiles), ``cluster`` (starting and closing Dask
-    workers), ``warm-up`` (importing the tile and finish-stage code in this process), then the
+    model: before in-process tiles, after Dask tiles), ``cluster`` (waiting for Dask workers to
+    start, and closing them), ``warm-up`` (importing the tile and finish-stage code in this
+    process), then the
     area-dependent stages of :data:`AREA_STAGES`.
     """
     run = result.run if isinstance(result.run, dict) else {}

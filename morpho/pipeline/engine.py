@@ -260,9 +260,10 @@ class TilePool:
     Parameters
     ----------
     workers : int, optional
-        Local worker processes (``None`` = all cores); 1 runs everything in this process.
+        Processes that run tiles (``None`` = all cores); 1 runs everything in this process. On
+        a local cluster this process is one of them, beside ``workers - 1`` Dask workers.
     scheduler : str, optional
-        Address of an existing dask.distributed scheduler.
+        Address of an existing dask.distributed scheduler (all tiles then go to its workers).
     warm_modules : sequence of str
         Imported, with their ``_warm_up()`` hooks, on every worker when the cluster starts
         (see :func:`run_tiles`).
@@ -270,7 +271,10 @@ class TilePool:
     Attributes
     ----------
     seconds : float
-        Time spent starting and closing the client/cluster so far (0 when serial).
+        Time spent waiting for the client/cluster to start, and closing it, so far (0 when
+        serial; a start in the background while this process ran tiles is not a wait).
+    background_start_seconds : float
+        How long that background start took.
     """
 
     def __init__(self, *, workers: int | None = 1, scheduler: str | None = None, warm_modules: Sequence[str] = ()):

@@ -723,9 +723,10 @@ def survey(
     model : str or Path, optional
         Scoring model file (skops); the shipped default when omitted.
     workers : int, optional
-        Local worker processes (``None`` = all cores). Several tiles go to a local Dask
-        cluster; a single tile runs in this process, and with more than one worker a second
-        process loads the scoring model beside it and scores. Both start processes by
+        Processes that run tiles (``None`` = all cores). Several tiles are shared between
+        this process and ``workers - 1`` local Dask workers; a single tile runs in this
+        process, and with more than one worker a second process loads the scoring model
+        beside it and scores. Both start processes by
         ``spawn``, so a script that calls this with more than one worker needs the usual
         ``if __name__ == "__main__":`` guard (see :mod:`multiprocessing`).
     scheduler : str, optional
