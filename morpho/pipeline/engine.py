@@ -198,12 +198,8 @@ def run_tiles(
                     continue
                 _record(spec, df=df)
         elif todo and pool.shares:
-            t_warm = time.perf_counter()
-            pool.start_in_background()
-            _import_all(pool.warm_modules)  # this process runs tiles too: the same one-off set-up
-            run.warmup_seconds = time.perf_counter() - t_warm
-            _run_shared(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
-                        dict(background_tasks or {}), run.background, local_modules)
+            _run_shared(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}),
+                        dict(background_tasks or {}), run, local_modules)
         elif todo:
             pool.start()
             _run_dask(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}), run.side,
@@ -303,8 +299,13 @@ class TilePool:
         """Whether ``n_tiles`` tiles go to Dask (see :func:`uses_dask`)."""
         return self.client is not None or uses_dask(n_tiles, self.workers, self.scheduler)
 
-    def start_in_background(self) -> None:
-        """Start the local cluster in a thread while this process goes on (see :meth:`wait_started`)."""
+    def start_in_background(self, on_ready: Callable[[], None] | None = None) -> None:
+        """Start the local cluster in a thread while this process goes on (see :meth:`wait_started`).
+
+        ``on_ready`` is called in that thread as soon as the workers are up (e.g. to hand them
+        tiles at once rather than when this process next looks); what it raises is kept like a
+        failed start.
+        """
         if self.client is not None or self._starter is not None:
             return
 
@@ -312,17 +313,14 @@ class TilePool:
             t0 = time.perf_counter()
             try:
                 self._start()
+                self.background_start_seconds = time.perf_counter() - t0
+                if on_ready is not None:
+                    on_ready()
             except BaseException as err:  # noqa: BLE001 - handed to the thread that waits
                 self._start_error = err
-            self.background_start_seconds = time.perf_counter() - t0
 
         self._starter = threading.Thread(target=target, name="morpho-cluster-start", daemon=True)
         self._starter.start()
-
-    @property
-    def started(self) -> bool:
-        """Whether the cluster is up (started in the background or not)."""
-        return self.client is not None and (self._starter is None or not self._starter.is_alive())
 
     def wait_started(self) -> None:
         """Wait for a background start; re-raise what it raised. The wait counts in ``seconds``."""
@@ -381,12 +379,11 @@ class TilePool:
                 cluster = LocalCluster(n_workers=n_dask, threads_per_worker=1, processes=True,
                                        dashboard_address=None)
             self._cluster = cluster
-            client = Client(cluster)
+            self.client = Client(cluster)
         else:
-            client = Client(self.scheduler)
+            self.client = Client(self.scheduler)
         if self.warm_modules:
-            client.run(_import_all, self.warm_modules)
-        self.client = client
+            self.client.run(_import_all, self.warm_modules)
 
     def submit(self, func: Callable, *args, workers: Sequence[str] | None = None):
         """Run ``func(*args)`` on a worker if the cluster is up, else in this process when asked.
@@ -492,27 +489,32 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
         record(spec, df=df)
 
 
-def _run_shared(pool, func, first_arg, todo, extra_args, record, side_tasks, side, background_tasks, background,
+def _run_shared(pool, func, first_arg, todo, extra_args, record, side_tasks, background_tasks, run,
                 local_modules) -> None:
     """Run the tiles in this process and on the pool's Dask workers at once (a local cluster).
 
     The cluster starts in the background (:meth:`TilePool.start_in_background`) while this
     process takes its first tiles: starting worker processes (~2 s on two cores) no longer
-    holds up the tiles, and one process fewer pays a cold first tile. Each Dask worker holds
-    one tile at a time, the next handed out as soon as it finishes (a done-callback), so that at
-    the end this process never waits for tiles queued behind a worker's running one. Everyone
-    takes the largest tile left, so the last to end are the shortest. Once the cluster is up
-    the side and background tasks go to it as with :func:`_run_dask`. Every tile runs the same
-    function with the same arguments wherever it runs.
+    holds up the tiles, and one process fewer pays a cold first tile. Once the workers are up
+    (in the starting thread) each gets one tile, then the next as soon as it finishes (a
+    done-callback), so that at the end this process never waits for tiles queued behind a
+    worker's running one; the side and background tasks go to them as with :func:`_run_dask`.
+    Everyone takes the largest tile left, so the last to end are the shortest. Every tile runs
+    the same function with the same arguments wherever it runs.
     """
-    run = _SharedRun(pool, func, first_arg, todo, extra_args, record, side)
+    shared = _SharedRun(pool, func, first_arg, todo, extra_args, record, run.side)
+    pool.start_in_background(on_ready=lambda: shared.on_ready(side_tasks, background_tasks, run.background))
     try:
-        run.tiles_here(side_tasks, background_tasks, background)
+        t_warm = time.perf_counter()
+        _import_all(pool.warm_modules)  # this process runs tiles too: the same one-off set-up
+        run.warmup_seconds = time.perf_counter() - t_warm
+        shared.tiles_here()
+        pool.wait_started()  # re-raises a failed start
         # This process has no tile left: its own one-off imports for after the tiles go here.
         _import_all(local_modules)
-        run.wait_for_workers()
+        shared.wait_for_workers()
     finally:
-        run.stop()
+        shared.stop()
 
 
 class _SharedRun:
@@ -550,20 +552,19 @@ class _SharedRun:
         with self.lock:
             self.stopped = True
 
-    def _on_ready(self, side_tasks, background_tasks, background) -> None:
+    def on_ready(self, side_tasks, background_tasks, background) -> None:
+        """The workers are up (called in the starting thread): one tile each, then the other tasks."""
         for _ in range(self.pool.n_workers - 1):
             self.hand_out()
-        self.extra.update({self.pool.submit(f, *args): name for name, (f, args) in side_tasks.items()})
+        extra = {self.pool.submit(f, *args): name for name, (f, args) in side_tasks.items()}
+        with self.lock:
+            self.extra.update(extra)
         for name, (f, args) in background_tasks.items():
             background[name] = self.pool.submit(f, *args)
 
-    def tiles_here(self, side_tasks, background_tasks, background) -> None:
-        """Run tiles in this process until none is left; start Dask's share once the cluster is up."""
-        ready = False
+    def tiles_here(self) -> None:
+        """Run tiles in this process until none is left, recording the workers' as they end."""
         while True:
-            if not ready and self.pool.started:
-                ready = True
-                self._on_ready(side_tasks, background_tasks, background)
             self.harvest(block=False)
             spec = self.take()
             if spec is None:
@@ -574,9 +575,6 @@ class _SharedRun:
                 self.record(spec, err=err)
                 continue
             self.record(spec, df=df)
-        self.pool.wait_started()
-        if not ready:  # the cluster came up only after this process took the last tile
-            self._on_ready(side_tasks, background_tasks, background)
 
     def harvest(self, *, block: bool) -> None:
         """Record the Dask tiles (and side tasks) that have ended; with ``block``, wait for one first."""
