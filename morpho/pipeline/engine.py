@@ -209,6 +209,8 @@ def run_tiles(
             pool.close()
         run.cluster_seconds = pool.seconds
     bar.close()
+    if pool.background_start_seconds:
+        log.info("the local cluster started in %.1f s while this process ran tiles", pool.background_start_seconds)
     run.results = [done[s.index] for s in specs if s.index in done]
     run.seconds = time.perf_counter() - t0
     return run
