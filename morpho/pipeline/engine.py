@@ -191,12 +191,7 @@ def run_tiles(
             _import_all((*pool.warm_modules, *local_modules))
             run.warmup_seconds = time.perf_counter() - t_warm
             for spec in todo:
-                try:
-                    df = _run_one(func, first_arg, spec, extra_args)
-                except Exception as err:  # noqa: BLE001
-                    _record(spec, err=err)
-                    continue
-                _record(spec, df=df)
+                _run_here(func, first_arg, spec, extra_args, _record)
         elif todo and pool.shares:
             _run_shared(pool, func, first_arg, todo, extra_args, _record, dict(side_tasks or {}),
                         dict(background_tasks or {}), run, local_modules)
@@ -238,14 +233,6 @@ def _import_all(modules) -> None:
         hook = getattr(importlib.import_module(name), "_warm_up", None)
         if callable(hook):
             hook()
-
-
-def _run_one(func, first_arg, spec, extra_args):
-    try:
-        return func(first_arg, spec, *extra_args)
-    except Exception as err:  # noqa: BLE001 - retried once, then reported by the caller
-        log.warning("tile %s failed (%s); retrying once", spec.key, err)
-        return func(first_arg, spec, *extra_args)
 
 
 class TilePool:
@@ -308,7 +295,11 @@ class TilePool:
         tiles at once rather than when this process next looks); what it raises is kept like a
         failed start.
         """
-        if self.client is not None or self._starter is not None:
+        if self._starter is not None:
+            return
+        if self.client is not None:  # already up (a pool used before): ready now
+            if on_ready is not None:
+                on_ready()
             return
 
         def target():
@@ -334,8 +325,6 @@ class TilePool:
             if self._start_error is not None:
                 err, self._start_error = self._start_error, None
                 raise err
-        elif self.client is None:
-            self.start()
 
     def start(self) -> None:
         """Start the local cluster (or connect to the scheduler) if not yet done."""
@@ -461,14 +450,7 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
     """Run the tiles (and side tasks) on a started pool's Dask client, recording each tile as it completes."""
     from dask.distributed import as_completed
 
-    client = pool.client
-    futures = {}
-    # Largest windows first (edge tiles are smaller): the last tasks, which can leave a core
-    # idle, are then the shortest. Results are put back in tile order by the caller.
-    for spec in sorted(todo, key=lambda t: -t.height * t.width):
-        fut = client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
-                            key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
-        futures[fut] = spec
+    futures = {_submit_tile(pool.client, func, first_arg, spec, extra_args): spec for spec in _largest_first(todo)}
     # Submitted after the tiles; Dask may still start them between tiles (see run_tiles).
     extra = {pool.submit(f, *args): name for name, (f, args) in (side_tasks or {}).items()}
     for name, (f, args) in (background_tasks or {}).items():
@@ -476,19 +458,49 @@ def _run_dask(pool, func, first_arg, todo, extra_args, record, side_tasks=None, 
     # This process is idle while the workers run the tiles: its own one-off imports go here.
     _import_all(local_modules)
     for fut in as_completed(list(futures) + list(extra)):
-        if fut in extra:
-            try:
-                side[extra[fut]] = fut.result()
-            except Exception as err:  # noqa: BLE001 - the caller computes it itself
-                log.debug("side task %s failed on a worker: %s", extra[fut], err)
-            continue
-        spec = futures[fut]
+        _collect(fut, futures, extra, side, record)
+
+
+def _largest_first(specs) -> list:
+    """Largest windows first (edge tiles are smaller): the last tiles, which can leave a core
+    idle, are then the shortest. Results are put back in tile order by the caller."""
+    return sorted(specs, key=lambda t: -t.height * t.width)
+
+
+def _submit_tile(client, func, first_arg, spec, extra_args):
+    """One tile on Dask, retried once there."""
+    return client.submit(func, first_arg, spec, *extra_args, retries=1, pure=False,
+                         key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
+
+
+def _run_here(func, first_arg, spec, extra_args, record) -> None:
+    """One tile in this process, retried once if it raises; recorded either way."""
+    try:
         try:
-            df = fut.result()
-        except Exception as err:  # noqa: BLE001
-            record(spec, err=err)
-            continue
-        record(spec, df=df)
+            df = func(first_arg, spec, *extra_args)
+        except Exception as err:  # noqa: BLE001 - retried once, then reported
+            log.warning("tile %s failed (%s); retrying once", spec.key, err)
+            df = func(first_arg, spec, *extra_args)
+    except Exception as err:  # noqa: BLE001
+        record(spec, err=err)
+        return
+    record(spec, df=df)
+
+
+def _collect(fut, futures, extra, side, record) -> None:
+    """Record a finished Dask tile, or keep a side task's value (a failed one the caller redoes)."""
+    if fut in extra:
+        try:
+            side[extra[fut]] = fut.result()
+        except Exception as err:  # noqa: BLE001 - the caller computes it itself
+            log.debug("side task %s failed on a worker: %s", extra[fut], err)
+        return
+    try:
+        df = fut.result()
+    except Exception as err:  # noqa: BLE001
+        record(futures[fut], err=err)
+        return
+    record(futures[fut], df=df)
 
 
 def _run_shared(pool, func, first_arg, todo, extra_args, record, side_tasks, background_tasks, run,
@@ -525,7 +537,7 @@ class _SharedRun:
     def __init__(self, pool, func, first_arg, todo, extra_args, record, side):
         self.pool, self.func, self.first_arg, self.extra_args, self.record = pool, func, first_arg, extra_args, record
         self.side = side
-        self.queue = deque(sorted(todo, key=lambda t: -t.height * t.width))
+        self.queue = deque(_largest_first(todo))
         # Taking a tile off the queue and recording its future happen under one lock, so that
         # when this process finds the queue empty, every tile given out is in ``futures``.
         self.lock = threading.Lock()
@@ -540,8 +552,7 @@ class _SharedRun:
             if self.stopped or not self.queue:
                 return
             spec = self.queue.popleft()
-            fut = self.pool.client.submit(self.func, self.first_arg, spec, *self.extra_args, retries=1, pure=False,
-                                          key=f"morpho-tile-{spec.key}-{time.monotonic_ns()}")
+            fut = _submit_tile(self.pool.client, self.func, self.first_arg, spec, self.extra_args)
             self.futures[fut] = spec
         fut.add_done_callback(self.hand_out)
 
@@ -571,12 +582,7 @@ class _SharedRun:
             spec = self.take()
             if spec is None:
                 break
-            try:
-                df = _run_one(self.func, self.first_arg, spec, self.extra_args)
-            except Exception as err:  # noqa: BLE001
-                self.record(spec, err=err)
-                continue
-            self.record(spec, df=df)
+            _run_here(self.func, self.first_arg, spec, self.extra_args, self.record)
 
     def harvest(self, *, block: bool) -> None:
         """Record the Dask tiles (and side tasks) that have ended; with ``block``, wait for one first."""
@@ -590,18 +596,7 @@ class _SharedRun:
             if not fut.done():
                 continue
             self.harvested.add(fut)
-            if fut in self.extra:
-                try:
-                    self.side[self.extra[fut]] = fut.result()
-                except Exception as err:  # noqa: BLE001 - the caller computes it itself
-                    log.debug("side task %s failed on a worker: %s", self.extra[fut], err)
-                continue
-            try:
-                df = fut.result()
-            except Exception as err:  # noqa: BLE001
-                self.record(self.futures[fut], err=err)
-                continue
-            self.record(self.futures[fut], df=df)
+            _collect(fut, self.futures, self.extra, self.side, self.record)
 
     def wait_for_workers(self) -> None:
         """Record every tile and side task still on Dask."""
