@@ -332,6 +332,7 @@ def find_candidates(
     """
     rows, cols, rads, scores = [], [], [], []
     level, vmask = z_filled, valid
+    all_valid = bool(valid.all())
     factor = 1.0
     octave = 0
     while True:
@@ -365,7 +366,10 @@ def find_candidates(
             del resp, sm  # this level's full-size maps are not needed while the next is built
         # Next octave: antialias then keep every second pixel; level pixel i -> full i * factor.
         level = ndimage.gaussian_filter(level, 1.0)[::2, ::2]
-        vmask = ndimage.gaussian_filter(vmask.astype(np.float64), 1.0)[::2, ::2] > 0.5
+        if all_valid:  # a blurred all-ones mask is 1 everywhere: skip a float64 pass per octave
+            vmask = np.ones(level.shape, dtype=bool)
+        else:
+            vmask = ndimage.gaussian_filter(vmask.astype(np.float64), 1.0)[::2, ::2] > 0.5
         factor *= 2.0
         octave += 1
     if not rows:
