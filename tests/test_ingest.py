@@ -13,6 +13,7 @@ from morpho.errors import CrsError, DemError
 from morpho.ingest import (
     ground_pixel_size,
     open_dem,
+    plan_tiles,
     plan_windows,
     read_dem,
     read_tile,
@@ -248,3 +249,39 @@ def test_footprint_strips_equal_gdal_decimation(raster_writer):
         assert np.array_equal(np.ma.getdata(got), np.ma.getdata(ref))
     fp = valid_footprint(info, max_size=500)
     assert 0.9 < fp.area / (1000 * 1537 * 100.0**2 - 700 * 120 * 100.0**2) < 1.1
+
+
+@pytest.mark.parametrize("lat", [0.0, 70.0])
+def test_core_box_holds_every_core_position_of_a_warped_tile(raster_writer, lat):
+    # The box a tile's detector searches (DemTile.core_box) must hold every grid position the
+    # tile owns (DemTile.in_core), also on a grid warped to local stereographic, where the core
+    # is a curved quadrilateral; otherwise craters near the core's edge would be lost.
+    path = _geographic(raster_writer, MOON_GEOG, lat, f"core_{lat}.tif")
+    info = open_dem(path)
+    specs = plan_tiles(info, 24, 8)
+    assert len(specs) == 9
+    for spec in specs:
+        tile = read_tile(info, spec)
+        assert tile.warped
+        r0, r1, c0, c1 = tile.core_box()
+        rows, cols = np.mgrid[0:tile.z.shape[0]:0.25, 0:tile.z.shape[1]:0.25]
+        owned = tile.in_core(rows.ravel(), cols.ravel())
+        assert owned.any()
+        rr, cc = rows.ravel()[owned], cols.ravel()[owned]
+        assert rr.min() >= r0 - 0.5 and rr.max() < r1 - 0.5 + 1e-9
+        assert cc.min() >= c0 - 0.5 and cc.max() < c1 - 0.5 + 1e-9
+        # and it is no wider than the core plus a few pixels of the warp
+        assert (r1 - r0) <= (rr.max() - rr.min()) + 5 and (c1 - c0) <= (cc.max() - cc.min()) + 5
+
+
+def test_core_box_of_an_unwarped_tile_is_its_core(raster_writer):
+    path = raster_writer("box.tif", np.zeros((100, 90), "float32"), crs=MOON_STERE)
+    info = open_dem(path)
+    spec = plan_tiles(info, 40, 10)[4]
+    tile = read_tile(info, spec)
+    r0, r1, c0, c1 = tile.core_box()
+    assert (r0, c0) == (spec.core_row_off - spec.row_off, spec.core_col_off - spec.col_off)
+    assert (r1 - r0, c1 - c0) == (spec.core_height, spec.core_width)
+    rows, cols = np.mgrid[0:tile.z.shape[0], 0:tile.z.shape[1]]
+    inside = (rows >= r0) & (rows < r1) & (cols >= c0) & (cols < c1)
+    assert np.array_equal(tile.in_core(rows.ravel(), cols.ravel()), inside.ravel())

@@ -214,6 +214,50 @@ def _level_response(level: np.ndarray, valid: np.ndarray, radii: np.ndarray):
     return out, sm
 
 
+def _level_reach(radii: np.ndarray) -> tuple[int, int]:
+    """How far (level pixels) :func:`_level_response` and the ring-relief screen reach from a
+    pixel, and the subsampling step of its RMS map (a window must start on that grid).
+
+    Sums the kernel radii of every filter feeding one response value: the first blur (4), two
+    gradients (1 each), the RMS blur on its coarse grid plus the interpolation back, the chain
+    of DoG blurs, the 3 x 3 x 3 maximum (1) and the ring of :func:`_ring_relief`. A response
+    farther than this from a window's edge is the same, bit for bit, on the window as on the
+    whole level.
+    """
+    s_rms = 2.0 * float(radii[-1])
+    st = _coarse_step(s_rms)
+    reach = 4 + 2 + st * (int(3.0 * s_rms / st + 0.5) + 2)
+    sig = radii / _C
+    reach += int(2.5 * sig[0] + 0.5)
+    for s in sig:
+        reach += int(2.5 * np.sqrt((s * _K) ** 2 - s**2) + 0.5)
+    reach += 1 + int(np.ceil(float(radii[-1]) * _RADIUS_CAL)) + 1
+    return reach, st
+
+
+def _base_window(shape, region, radii):
+    """Window of the base level that reproduces its responses out to ``_WINDOW_BUFFER`` pixels
+    around ``region`` (row0, row1, col0, col1): slices, and the box of exact responses in
+    window coordinates."""
+    reach, st = _level_reach(radii)
+    h, w = shape
+    r0, r1, c0, c1 = region
+    grow = reach + _WINDOW_BUFFER
+    # start on the RMS map's subsampling grid, so the window samples the same pixels
+    wr0 = max(0, (int(r0) - grow) // st * st)
+    wc0 = max(0, (int(c0) - grow) // st * st)
+    wr1, wc1 = min(h, int(r1) + grow), min(w, int(c1) + grow)
+    exact = (max(0, int(r0) - _WINDOW_BUFFER) - wr0, min(h, int(r1) + _WINDOW_BUFFER) - wr0,
+             max(0, int(c0) - _WINDOW_BUFFER) - wc0, min(w, int(c1) + _WINDOW_BUFFER) - wc0)
+    return (slice(wr0, wr1), slice(wc0, wc1)), exact
+
+
+#: Pixels around a tile's core in which base-level candidates are kept: they may merge with a
+#: candidate in the core (duplicates lie within 0.75 radius of each other, and base-level radii
+#: are at most ~12 px), so they are found as on the whole tile.
+_WINDOW_BUFFER = 32
+
+
 #: The 26 neighbours of a scale-space sample (d_scale, d_row, d_col), those in its own scale first:
 #: most candidates fail there, so the later comparisons see few.
 _NEIGHBOURS = ((0, 0, 1), (0, 0, -1), (0, 1, 0), (0, -1, 0), (0, 1, 1), (0, 1, -1), (0, -1, 1), (0, -1, -1),
@@ -309,6 +353,7 @@ def find_candidates(
     threshold: float = 0.33,
     spacing_m: float = 1.0,
     min_depth_ratio: float = 0.0,
+    region: tuple[int, int, int, int] | None = None,
 ) -> Candidates:
     """Scale-space maxima of the radial-symmetry response over a Gaussian pyramid.
 
@@ -325,6 +370,12 @@ def find_candidates(
     spacing_m, min_depth_ratio : float
         Pixel size (m) and the verification's depth/diameter floor: candidates whose
         (rim ring - centre) relief is below 0.6 x that floor are dropped (a cheap screen).
+    region : (row0, row1, col0, col1), optional
+        The box whose craters are wanted (a tile's core; half-open, pixels). The full-resolution
+        level, ~3/4 of the cost, is then computed only on the box plus what its filters reach
+        (:func:`_level_reach`) plus ``_WINDOW_BUFFER``, and keeps the maxima within the buffer of
+        the box; those are exactly the ones the whole level gives there. Coarser levels, whose
+        craters reach farther, use the whole array.
 
     Returns
     -------
@@ -344,15 +395,25 @@ def find_candidates(
             j0 = int(np.floor(_STEPS * np.log2(max(lo_full, 1.0) / (_R_LEVEL * factor))))
             j = np.arange(j0, _STEPS)
             radii = _R_LEVEL * _K**j  # level pixels
-            resp, sm = _level_response(level, vmask, radii)
+            if octave == 0 and region is not None:
+                win, exact = _base_window(level.shape, region, radii)
+            else:
+                win, exact = (slice(0, None), slice(0, None)), None
+            vwin = vmask[win]
+            resp, sm = _level_response(level[win], vwin, radii)
             jj, rr, cc = _scale_space_maxima(resp, threshold)
+            if exact is not None:
+                # beyond the buffer the window's edge shows; and no candidate there is wanted
+                e0, e1, f0, f1 = exact
+                inside = (rr >= e0) & (rr < e1) & (cc >= f0) & (cc < f1)
+                jj, rr, cc = jj[inside], rr[inside], cc[inside]
             rad_full = radii[jj] * factor * _RADIUS_CAL
             keep = (rad_full >= min_radius_px / 1.3) & (rad_full <= max_radius_px * 1.3)
-            relief = _ring_relief(sm, vmask, rr, cc, radii[jj] * _RADIUS_CAL)
+            relief = _ring_relief(sm, vwin, rr, cc, radii[jj] * _RADIUS_CAL)
             d_m = 2.0 * rad_full * spacing_m
             keep &= relief >= 0.6 * depth_ratio_floor(d_m, min_depth_ratio) * d_m
-            rows.append(rr[keep] * factor)
-            cols.append(cc[keep] * factor)
+            rows.append((rr[keep] + win[0].start) * factor)
+            cols.append((cc[keep] + win[1].start) * factor)
             rads.append(rad_full[keep])
             scores.append(resp[jj[keep], rr[keep], cc[keep]])
             if factor >= _RING_MIN_FACTOR and min_depth_ratio > 0:

@@ -7,7 +7,7 @@ import pandas as pd
 
 from morpho.errors import InputError
 
-from ._candidates import find_candidates, prepare_surface
+from ._candidates import _WINDOW_BUFFER, find_candidates, prepare_surface
 from ._merge import suppress_duplicates
 from ._verify import verify_candidates
 
@@ -42,6 +42,16 @@ def _check(z, spacing_m, min_diameter_px, max_diameter_px):
     return z, float(max_diameter_px)
 
 
+def _may_reach(region, rows, cols, radius_px) -> np.ndarray:
+    """Candidates that may end in ``region`` or merge with one there: centres within two radii
+    (refinement moves a centre by less than one; duplicates lie within 0.75 of the larger
+    radius) plus the base level's buffer of it."""
+    r0, r1, c0, c1 = region
+    dr = np.maximum.reduce([r0 - rows, rows - (r1 - 1), np.zeros_like(rows)])
+    dc = np.maximum.reduce([c0 - cols, cols - (c1 - 1), np.zeros_like(cols)])
+    return np.hypot(dr, dc) <= 2.0 * radius_px + _WINDOW_BUFFER
+
+
 def detect_craters(
     z,
     spacing_m: float,
@@ -52,6 +62,7 @@ def detect_craters(
     min_depth_ratio: float = 0.02,
     min_rim_coverage: float = 0.6,
     n_azimuths: int = 32,
+    region: tuple[int, int, int, int] | None = None,
 ) -> pd.DataFrame:
     """Find craters in a DEM tile.
 
@@ -87,6 +98,11 @@ def detect_craters(
         Minimum share of profile azimuths whose rim-crest window lies on valid data.
     n_azimuths : int
         Radial profiles per crater in the verification step.
+    region : (row0, row1, col0, col1), optional
+        Only craters centred in this box (half-open, pixels; a tile's core) are wanted. The
+        finest scales are then searched only around it and candidates that cannot reach it are
+        not verified, so the tile's overlap costs less; craters in the box and near it come out
+        as without ``region``, others may be missing.
 
     Returns
     -------
@@ -117,10 +133,12 @@ def detect_craters(
     min_r, max_r = 0.5 * float(min_diameter_px), 0.5 * max_diameter_px
     filled, valid = prepare_surface(z)
     cand = find_candidates(filled, valid, min_radius_px=min_r, max_radius_px=max_r,
-                           spacing_m=float(spacing_m), min_depth_ratio=min_depth_ratio)
+                           spacing_m=float(spacing_m), min_depth_ratio=min_depth_ratio, region=region)
     # Cheap first merge on the detector score: many scale-space maxima are the same bowl.
     keep = suppress_duplicates(cand.rows, cand.cols, cand.radius_px, cand.score, max_offset=0.3,
                                greedy=False)
+    if region is not None:
+        keep = keep[_may_reach(region, cand.rows[keep], cand.cols[keep], cand.radius_px[keep])]
     ver = verify_candidates(z, cand.rows[keep], cand.cols[keep], cand.radius_px[keep],
                             float(spacing_m), min_depth_ratio=min_depth_ratio,
                             n_azimuths=n_azimuths)

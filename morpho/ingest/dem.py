@@ -205,6 +205,26 @@ class DemTile:
             & (sc >= s.core_col_off) & (sc < s.core_col_off + s.core_width)
         )
 
+    def core_box(self) -> tuple[int, int, int, int]:
+        """Grid pixel box ``(row0, row1, col0, col1)`` (half-open) holding every position
+        :meth:`in_core` accepts: the core itself, or on a warped grid the bounding box of the
+        core's outline (sampled every few source pixels) plus one pixel."""
+        s = self.spec
+        h, w = self.z.shape
+        if not self.warped:
+            r0, c0 = s.core_row_off - s.row_off, s.core_col_off - s.col_off
+            return r0, r0 + s.core_height, c0, c0 + s.core_width
+        # the core's edge in source pixel positions (pixel centres at integers)
+        edge = np.linspace(0.0, 1.0, 129)
+        top, left = s.core_row_off - 0.5, s.core_col_off - 0.5
+        sr = top + np.concatenate([np.zeros(129), edge, np.ones(129), edge[::-1]]) * s.core_height
+        sc = left + np.concatenate([edge, np.ones(129), edge[::-1], np.zeros(129)]) * s.core_width
+        x, y = self.info.transform @ (sc + 0.5, sr + 0.5)
+        rows, cols = self.from_source(x, y)
+        r0 = max(0, int(np.floor(np.min(rows))) - 1)
+        c0 = max(0, int(np.floor(np.min(cols))) - 1)
+        return r0, min(h, int(np.ceil(np.max(rows))) + 2), c0, min(w, int(np.ceil(np.max(cols))) + 2)
+
     def scale_factor(self, rows, cols) -> np.ndarray:
         """Isotropic map scale k (map length / ground length) at grid positions; 1 without CRS."""
         rows = np.asarray(rows, dtype=np.float64)

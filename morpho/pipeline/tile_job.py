@@ -140,6 +140,7 @@ def _survey_tile(info: DemInfo, spec: TileSpec, params: TileParams) -> pd.DataFr
     cand = detect_craters(
         tile.z, tile.spacing_m,
         min_diameter_px=params.min_diameter_px, max_diameter_px=params.max_diameter_px,
+        region=tile.core_box(),
     )
     if len(cand) == 0:
         return pd.DataFrame()
