@@ -16,7 +16,7 @@ CAVEATS = """\
 3. Laboratory electrode (arc or spark) spots are micrometre-to-millimetre features on metal electrodes. Scaling their shapes to kilometre-sized craters on rock and regolith is an untested assumption.
 4. No published depth/diameter ratio exists for laboratory arc or spark craters; the spot-morphology parameters morpho uses for them are assumptions, stated in the hypothesis files.
 5. Measurements depend on DEM resolution and quality: craters spanning few pixels, or with rims on missing data, carry larger uncertainties (see the *_err, rim_coverage and pixels_per_diameter columns).
-6. The scorer learnt from synthetic craters only. Craters outside its training ranges get the verdict 'neither' (the scoring_domain column says why); on real, heavily degraded or overlapping craters even in-range verdicts are unreliable (see the model card's failure modes)."""
+6. The scorer learnt from synthetic craters only. Craters outside its training ranges, or seen on rougher, more crowded and coarser ground at once than almost any training crater, get the verdict 'neither' (the scoring_domain column says why); on real, heavily degraded or overlapping craters even in-range verdicts are unreliable (see the model card's failure modes)."""
 
 #: One line for command-line summaries.
 CAVEATS_SHORT = (

@@ -73,8 +73,11 @@ FIELDS = (
     Field(
         "scoring_domain", "", "str",
         "Empty when the crater lies inside the scoring model's training domain; otherwise why not "
-        "(resolution, size, degradation). Verdicts outside the domain are set to 'neither'.",
-        "training ranges of the model: 10-80 px per diameter, D <= 5 x transition diameter, kappa t/D^2 <= 0.02",
-        "common practice (no extrapolation of a classifier beyond its training data)",
+        "(resolution, size, degradation, or how it is seen). Verdicts outside the domain are set to 'neither'.",
+        "training ranges of the model: 10-80 px per diameter, D <= 5 x transition diameter, kappa t/D^2 <= 0.02; "
+        "and at least 0.1 % of the model's training craters as rough (exterior_roughness), as crowded "
+        "(neighbour_cover) and as coarse (pixels_per_diameter) at once",
+        "common practice (no extrapolation of a classifier beyond its training data; data-depth "
+        "applicability domain, e.g. Netzeva et al. 2005, ATLA 33:155, from memory)",
     ),
 )

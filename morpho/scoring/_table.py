@@ -90,7 +90,7 @@ def apply_scores(df: pd.DataFrame, body, fitted) -> pd.DataFrame:
     for col in scores.columns:
         df[col] = scores[col].to_numpy()
     # Outside the training domain the classifier extrapolates: flag it, claim neither.
-    notes = training_domain_notes(df, body)
+    notes = training_domain_notes(df, body, getattr(fitted, "context_reference_", None))
     df["scoring_domain"] = notes
     outside = (notes != "") & df["verdict"].isin(["impact", "discharge", "undecided"]).to_numpy()
     df.loc[outside, "verdict"] = "neither"

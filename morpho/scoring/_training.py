@@ -287,8 +287,12 @@ def _training_job(job, *, hyps, noise_m, body, degradation) -> pd.DataFrame:
 def train_model(training: pd.DataFrame, seed: int = 0, **params) -> ImpactSpotClassifier:
     """Fit an :class:`ImpactSpotClassifier` on a training table from :func:`build_training_set`.
 
-    Craters the morphometry could not measure (``measure_status != "ok"``) are dropped.
+    Craters the morphometry could not measure (``measure_status != "ok"``) are dropped. The
+    fitted model also keeps the context measures of the craters it learnt from
+    (``context_reference_``, for :func:`morpho.scoring._domain.training_domain_notes`).
     """
+    from ._domain import CONTEXT_COLUMNS, context_reference  # _domain imports this module
+
     df = add_derived_features(_usable(training))
     # A column nobody could measure carries nothing (and trips the boosting's binning).
     cols = [c for c in feature_columns(df.columns) if df[c].notna().any()]
@@ -297,7 +301,11 @@ def train_model(training: pd.DataFrame, seed: int = 0, **params) -> ImpactSpotCl
                          fix="build it with build_training_set (measure_craters output).")
     df = balance_classes(df, seed)
     model = ImpactSpotClassifier(random_state=seed, **params)
-    return model.fit(df[cols].astype(np.float64), df["family"].to_numpy())
+    model.fit(df[cols].astype(np.float64), df["family"].to_numpy())
+    if all(c in df for c in CONTEXT_COLUMNS):
+        # How the craters it learnt from were seen: the scorer's joint domain check (see _domain)
+        model.context_reference_ = context_reference(df)
+    return model
 
 
 def balance_classes(df: pd.DataFrame, seed: int) -> pd.DataFrame:
