@@ -88,6 +88,9 @@ def main(argv=None):
         "Verdict shares: " + "; ".join(
             f"{k}: " + ", ".join(f"{v}={s:.3f}" for v, s in d.items()) for k, d in ev["verdicts"].items()),
         "",
+        "Outside the joint context check of a survey's domain guard (verdict 'neither' on top of the shares "
+        "above): " + ", ".join(f"{k} {v:.3f}" for k, v in ev.get("context_flagged", {}).items()) + ".",
+        "",
         "## Fresh Pike-shaped bowls on unseen synthetic DEMs",
         "",
         f"{bowls['share_unoverlapped']:.3f} of the {bowls['n_unoverlapped']} fresh simple impact craters whose "

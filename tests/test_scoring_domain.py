@@ -76,3 +76,12 @@ def test_shipped_model_carries_the_context_of_its_training_craters():
     n_as_hard = np.array([np.sum((r >= row).all(axis=1)) - 1 for row in r])
     flagged = np.mean(n_as_hard / (len(r) - 1) < MIN_CONTEXT_SHARE)
     assert flagged == pytest.approx(0.016, abs=0.012)
+
+
+def test_model_card_reports_what_the_joint_check_costs_on_held_out_craters():
+    _, card = load_model(default_model_path(), with_card=True)
+    flagged = card["training"]["held_out_outside_joint_context_check"]
+    # held-out craters come from the training generator, so few of them lie in the corner the
+    # check guards (1.7 % of the training craters themselves, measured above)
+    assert set(flagged) == {"impact", "spot"}
+    assert 0.0 < flagged["impact"] < 0.04 and 0.0 < flagged["spot"] < 0.06

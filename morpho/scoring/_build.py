@@ -110,6 +110,7 @@ def rebuild_model(hypotheses_dir, output, *, seed: int = DEFAULT_SEED,
         "held_out": f"{n_held_out} impact craters + the same number of spot craters, seed {seed + HELD_OUT_SEED_OFFSET}",
         "spot_family_accuracy_held_out": round(evaluation["family_accuracy"], 4),
         "verdict_shares_held_out": evaluation["verdicts"],
+        "held_out_outside_joint_context_check": evaluation.get("context_flagged", {}),
         "renderer": "morpho.synth.render_crater_patches",
         "measurement": "morpho.morphometry.measure_craters (same code path as real craters)",
     }

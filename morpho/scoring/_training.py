@@ -340,8 +340,10 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
     -------
     dict
         ``{"bands": [...], "family_accuracy": float, "verdicts": {...}, "by_context": {setting: [...]},
-        "n_unmeasured": int}``; settings are :data:`SETTINGS` (isolated patch craters, and craters
-        on crowded surfaces whose rim is clear of, or overlaps, a neighbour's).
+        "n_unmeasured": int, "context_flagged": {origin: share}}``; settings are :data:`SETTINGS`
+        (isolated patch craters, and craters on crowded surfaces whose rim is clear of, or overlaps,
+        a neighbour's). Metrics and verdicts are the model's own; ``context_flagged`` is the share
+        a survey's joint context check would set to 'neither' on top.
     """
     from ._score import score_craters
 
@@ -362,7 +364,20 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
             by_context[label] = metrics_by_band(is_impact[sel], scores["p_impact"].to_numpy()[sel],
                                                 df["pixels_per_diameter"].to_numpy()[sel])
     return {"bands": bands, "family_accuracy": fam_acc, "verdicts": verdicts, "by_context": by_context,
-            "n_unmeasured": int(len(held_out) - len(df))}
+            "n_unmeasured": int(len(held_out) - len(df)), "context_flagged": _context_flagged(df, model)}
+
+
+def _context_flagged(df: pd.DataFrame, model) -> dict:
+    """Share of craters per origin that the survey's joint context check would call outside the
+    training domain (verdict 'neither'; see :mod:`morpho.scoring._domain`); {} without a reference."""
+    from ._domain import CONTEXT_COLUMNS, MIN_CONTEXT_SHARE, context_share
+
+    ref = getattr(model, "context_reference_", None)
+    if ref is None or not all(c in df for c in CONTEXT_COLUMNS):
+        return {}
+    flagged = context_share(df[list(CONTEXT_COLUMNS)].to_numpy(np.float64), ref) < MIN_CONTEXT_SHARE
+    origin = df["origin"].to_numpy()
+    return {o: round(float(np.mean(flagged[origin == o])), 4) for o in ("impact", "spot") if np.any(origin == o)}
 
 
 #: Labels of the held-out settings reported separately.
