@@ -222,7 +222,8 @@ def _level_reach(radii: np.ndarray) -> tuple[int, int]:
     gradients (1 each), the RMS blur on its coarse grid plus the interpolation back, the chain
     of DoG blurs, the 3 x 3 x 3 maximum (1) and the ring of :func:`_ring_relief`. A response
     farther than this from a window's edge is the same, bit for bit, on the window as on the
-    whole level.
+    whole level; the one exception is dead-flat ground, where both the gradient and its local
+    RMS fall below the damping floor (1e-6 of the largest RMS, taken over the array given).
     """
     s_rms = 2.0 * float(radii[-1])
     st = _coarse_step(s_rms)
