@@ -370,12 +370,11 @@ def evaluate_model(model: ImpactSpotClassifier, held_out: pd.DataFrame) -> dict:
 def _context_flagged(df: pd.DataFrame, model) -> dict:
     """Share of craters per origin that the survey's joint context check would call outside the
     training domain (verdict 'neither'; see :mod:`morpho.scoring._domain`); {} without a reference."""
-    from ._domain import CONTEXT_COLUMNS, MIN_CONTEXT_SHARE, context_share
+    from ._domain import outside_context
 
-    ref = getattr(model, "context_reference_", None)
-    if ref is None or not all(c in df for c in CONTEXT_COLUMNS):
+    flagged = outside_context(df, getattr(model, "context_reference_", None))
+    if flagged is None:
         return {}
-    flagged = context_share(df[list(CONTEXT_COLUMNS)].to_numpy(np.float64), ref) < MIN_CONTEXT_SHARE
     origin = df["origin"].to_numpy()
     return {o: round(float(np.mean(flagged[origin == o])), 4) for o in ("impact", "spot") if np.any(origin == o)}
 
